@@ -1,0 +1,86 @@
+"""Service settings, read from the environment (prefix ``HYDRODRIFT_``) or a ``.env`` file.
+
+Nothing here is read at import time: call :func:`get_settings` when the process starts.
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+from pathlib import Path
+
+from pydantic import Field, field_validator
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+
+class Settings(BaseSettings):
+    """Every setting of the service, with its default.
+
+    The defaults run the embedded setup: a SQLite file under ``data_dir``. Set
+    ``HYDRODRIFT_DATABASE_URL=postgresql+psycopg://user@host/db`` for PostgreSQL.
+    """
+
+    model_config = SettingsConfigDict(
+        env_prefix="HYDRODRIFT_", env_file=".env", env_file_encoding="utf-8", extra="ignore"
+    )
+
+    data_dir: Path = Field(
+        default=Path("data"), description="Folder for the embedded database, quarantine, demo."
+    )
+    database_url: str = Field(
+        default="",
+        description="SQLAlchemy URL; empty means sqlite:///<data_dir>/hydrodrift.sqlite3.",
+    )
+    database_schema: str | None = Field(
+        default=None,
+        description="PostgreSQL schema to use (tests give each run its own); None = default.",
+    )
+    quarantine_bad_row_fraction: float = Field(
+        default=0.05,
+        ge=0.0,
+        le=1.0,
+        description="A file whose rejected rows exceed this fraction of its rows is quarantined.",
+    )
+    quarantine_min_bad_rows: int = Field(
+        default=10,
+        ge=0,
+        description="A file is never quarantined for fewer rejected rows than this.",
+    )
+    ingest_chunk_rows: int = Field(
+        default=200_000, ge=1_000, description="Rows read, checked and loaded per chunk."
+    )
+    stable_seconds: float = Field(
+        default=5.0,
+        ge=0.0,
+        description="Drop folder: a file is read only after size and mtime held this long.",
+    )
+    marker_suffix: str = Field(
+        default=".ready",
+        description="Drop folder: a 0-byte file NAME+suffix marks NAME as complete.",
+    )
+    http_retries: int = Field(default=4, ge=0, description="HTTP pull: retries after a failure.")
+    http_backoff_s: float = Field(
+        default=1.0, ge=0.0, description="HTTP pull: first backoff, doubled per retry."
+    )
+
+    @field_validator("data_dir")
+    @classmethod
+    def _expand(cls, value: Path) -> Path:
+        return value.expanduser()
+
+    @property
+    def effective_database_url(self) -> str:
+        """The database URL in force: the configured one or the embedded SQLite file."""
+        if self.database_url:
+            return self.database_url
+        return f"sqlite:///{(self.data_dir / 'hydrodrift.sqlite3').resolve()}"
+
+    @property
+    def quarantine_dir(self) -> Path:
+        """Where quarantined files are copied, named by their content hash."""
+        return self.data_dir / "quarantine"
+
+
+@lru_cache(maxsize=1)
+def get_settings() -> Settings:
+    """The process's settings, read once on first call."""
+    return Settings()

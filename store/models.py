@@ -1,0 +1,184 @@
+"""SQLAlchemy 2 models of the store.
+
+Configuration is append-only: a plant or unit changes by a new row in
+``plant_config_versions`` / ``unit_config_versions`` with its ``effective_from`` instant,
+so results computed against an old configuration can always name it.
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+from typing import Any
+
+from sqlalchemy import (
+    JSON,
+    BigInteger,
+    Float,
+    ForeignKey,
+    Integer,
+    String,
+    Text,
+    UniqueConstraint,
+)
+from sqlalchemy.dialects.postgresql import JSONB
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
+
+from store.signals import SIGNAL_NAMES
+from store.types import UtcDateTime
+
+JsonType = JSON().with_variant(JSONB(), "postgresql")
+
+
+def utc_now() -> datetime:
+    """The current instant, aware, in UTC."""
+    return datetime.now(UTC)
+
+
+class Base(DeclarativeBase):
+    """Declarative base of every model."""
+
+
+class Plant(Base):
+    """A power plant: its site (for gravity, air pressure, local weeks) and its units."""
+
+    __tablename__ = "plants"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    code: Mapped[str] = mapped_column(String(32), unique=True)
+    name: Mapped[str] = mapped_column(String(200))
+    latitude_deg: Mapped[float] = mapped_column(Float)
+    elevation_m: Mapped[float] = mapped_column(Float)
+    timezone: Mapped[str] = mapped_column(String(64))
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+
+    units: Mapped[list[Unit]] = relationship(back_populates="plant", order_by="Unit.code")
+    config_versions: Mapped[list[PlantConfigVersion]] = relationship(
+        back_populates="plant", order_by="PlantConfigVersion.version"
+    )
+
+
+class PlantConfigVersion(Base):
+    """One imported version of a plant's site data, export format and tag map."""
+
+    __tablename__ = "plant_config_versions"
+    __table_args__ = (UniqueConstraint("plant_id", "version"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    plant_id: Mapped[int] = mapped_column(ForeignKey("plants.id"), index=True)
+    version: Mapped[int] = mapped_column(Integer)
+    effective_from: Mapped[datetime] = mapped_column(UtcDateTime)
+    imported_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+    source_path: Mapped[str] = mapped_column(Text)
+    content_sha256: Mapped[str] = mapped_column(String(64))
+    config: Mapped[dict[str, Any]] = mapped_column(JsonType)
+
+    plant: Mapped[Plant] = relationship(back_populates="config_versions")
+
+
+class Unit(Base):
+    """A turbine-generator unit of a plant."""
+
+    __tablename__ = "units"
+    __table_args__ = (UniqueConstraint("plant_id", "code"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    plant_id: Mapped[int] = mapped_column(ForeignKey("plants.id"), index=True)
+    code: Mapped[str] = mapped_column(String(32))
+    runner_type: Mapped[str] = mapped_column(String(16))
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+
+    plant: Mapped[Plant] = relationship(back_populates="units")
+    config_versions: Mapped[list[UnitConfigVersion]] = relationship(
+        back_populates="unit", order_by="UnitConfigVersion.version"
+    )
+
+
+class UnitConfigVersion(Base):
+    """One version of a unit's configuration (ratings, geometry, reference data), in SI."""
+
+    __tablename__ = "unit_config_versions"
+    __table_args__ = (UniqueConstraint("unit_id", "version"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    unit_id: Mapped[int] = mapped_column(ForeignKey("units.id"), index=True)
+    version: Mapped[int] = mapped_column(Integer)
+    effective_from: Mapped[datetime] = mapped_column(UtcDateTime)
+    imported_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+    content_sha256: Mapped[str] = mapped_column(String(64))
+    config: Mapped[dict[str, Any]] = mapped_column(JsonType)
+
+    unit: Mapped[Unit] = relationship(back_populates="config_versions")
+
+
+class IngestedFile(Base):
+    """One export file seen by ingestion, known by its content hash."""
+
+    __tablename__ = "ingested_files"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    sha256: Mapped[str] = mapped_column(String(64), unique=True)
+    source: Mapped[str] = mapped_column(Text)
+    filename: Mapped[str] = mapped_column(Text)
+    size_bytes: Mapped[int] = mapped_column(BigInteger)
+    plant_id: Mapped[int | None] = mapped_column(ForeignKey("plants.id"), nullable=True)
+    plant_config_version: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    status: Mapped[str] = mapped_column(String(16))  # loaded | empty | quarantined
+    rows_total: Mapped[int] = mapped_column(Integer, default=0)
+    rows_new: Mapped[int] = mapped_column(Integer, default=0)
+    rows_unchanged: Mapped[int] = mapped_column(Integer, default=0)
+    rows_revised: Mapped[int] = mapped_column(Integer, default=0)
+    rows_rejected: Mapped[int] = mapped_column(Integer, default=0)
+    rows_flagged: Mapped[int] = mapped_column(Integer, default=0)
+    first_ts: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    last_ts: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    report: Mapped[dict[str, Any]] = mapped_column(JsonType, default=dict)
+    started_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+    finished_at: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    code_version: Mapped[str] = mapped_column(String(40))
+
+
+class QuarantinedFile(Base):
+    """A file held back whole because too much of it was unreadable; kept for review."""
+
+    __tablename__ = "quarantined_files"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    ingested_file_id: Mapped[int] = mapped_column(ForeignKey("ingested_files.id"), unique=True)
+    sha256: Mapped[str] = mapped_column(String(64))
+    original_path: Mapped[str] = mapped_column(Text)
+    stored_path: Mapped[str] = mapped_column(Text)
+    reason: Mapped[str] = mapped_column(Text)
+    quarantined_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+    released_at: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+
+
+def _sample_columns() -> dict[str, Any]:
+    columns: dict[str, Any] = {
+        "__tablename__": "samples",
+        # SQLite: a clustered (unit_id, ts) key; range scans by unit and time read in order.
+        "__table_args__": {"sqlite_with_rowid": False},
+        "__doc__": (
+            "Plant data, wide: one row per unit and UTC instant, canonical signals in SI.\n\n"
+            "``quality`` holds :class:`store.signals.Quality` bits; ``flagged_signals`` one "
+            "bit per signal in the order of :data:`store.signals.SIGNALS`."
+        ),
+        "unit_id": mapped_column(ForeignKey("units.id"), primary_key=True),
+        "ts": mapped_column(UtcDateTime, primary_key=True),
+        "quality": mapped_column(Integer, default=0, nullable=False),
+        "flagged_signals": mapped_column(BigInteger, default=0, nullable=False),
+        "source_file_id": mapped_column(Integer, nullable=True),
+        "__annotations__": {
+            "unit_id": Mapped[int],
+            "ts": Mapped[datetime],
+            "quality": Mapped[int],
+            "flagged_signals": Mapped[int],
+            "source_file_id": Mapped[int | None],
+        },
+    }
+    for name in SIGNAL_NAMES:
+        columns[name] = mapped_column(Float, nullable=True)
+        columns["__annotations__"][name] = Mapped[float | None]
+    return columns
+
+
+Sample = type("Sample", (Base,), _sample_columns())
