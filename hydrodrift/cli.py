@@ -1,0 +1,362 @@
+"""The ``hydrodrift`` command line."""
+
+from __future__ import annotations
+
+import sys
+import time
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from rich.console import Console
+from rich.progress import (
+    BarColumn,
+    MofNCompleteColumn,
+    Progress,
+    ProgressColumn,
+    Task,
+    TextColumn,
+    TimeElapsedColumn,
+)
+from rich.table import Table
+from rich.text import Text
+from sqlalchemy import Engine, func, select
+
+from hydrodrift import __version__
+from hydrodrift.settings import Settings, get_settings
+
+app = typer.Typer(add_completion=False, no_args_is_help=True,
+                  help="Efficiency drift, lost energy and alerts for hydro units.")
+db_app = typer.Typer(no_args_is_help=True, help="Database schema.")
+plant_app = typer.Typer(no_args_is_help=True, help="The plant registry.")
+files_app = typer.Typer(no_args_is_help=True, help="Ingested and quarantined files.")
+app.add_typer(db_app, name="db")
+app.add_typer(plant_app, name="plant")
+app.add_typer(files_app, name="files")
+
+out = Console()
+err = Console(stderr=True)
+
+SAFETY_NOTE = (
+    "hydrodrift advises; it never commands a unit. Operating limits, protection settings, "
+    "local codes and licensed practice prevail."
+)
+
+
+def _engine(settings: Settings, *, migrate: bool = True) -> Engine:
+    from store.engine import make_engine
+    from store.migrate import ensure_schema
+
+    engine = make_engine(settings.effective_database_url, schema=settings.database_schema)
+    if migrate:
+        ensure_schema(engine)
+    return engine
+
+
+@app.callback()
+def _root(
+    version: Annotated[bool, typer.Option("--version", help="Print the version.")] = False,
+) -> None:
+    if version:
+        out.print(f"hydrodrift {__version__}")
+        raise typer.Exit()
+
+
+# --------------------------------------------------------------------------- db
+@db_app.command("upgrade")
+def db_upgrade() -> None:
+    """Bring the database schema to the newest revision."""
+    from store.migrate import current_revision, upgrade
+
+    settings = get_settings()
+    engine = _engine(settings, migrate=False)
+    before = current_revision(engine)
+    upgrade(engine)
+    after = current_revision(engine)
+    where = engine.url.render_as_string(hide_password=True)
+    if before == after:
+        out.print(f"database {where}: already at revision {after}")
+    else:
+        out.print(f"database {where}: upgraded {before or '(empty)'} -> {after}")
+
+
+@db_app.command("current")
+def db_current() -> None:
+    """Print the schema revision of the database and of this code."""
+    from store.migrate import current_revision, head_revision
+
+    engine = _engine(get_settings(), migrate=False)
+    out.print(f"database: {current_revision(engine) or '(empty)'}; code: {head_revision()}")
+
+
+# --------------------------------------------------------------------------- plant
+@plant_app.command("import")
+def plant_import(
+    files: Annotated[list[Path], typer.Argument(help="Plant files (TOML).", exists=False)],
+) -> None:
+    """Create a plant and its units, or add new versions of them, from plant files."""
+    from ingest.plant_file import PlantFileError
+    from ingest.registry import import_plant_file
+
+    engine = _engine(get_settings())
+    failed = False
+    for path in files:
+        try:
+            result = import_plant_file(engine, path)
+        except PlantFileError as exc:
+            err.print(Text(str(exc), style="red"))
+            failed = True
+            continue
+        out.print(f"{path}: {result.summary()}")
+    if failed:
+        raise typer.Exit(1)
+
+
+@plant_app.command("list")
+def plant_list() -> None:
+    """List the plants and units in the registry with their configuration versions."""
+    from store.engine import session_scope
+    from store.models import Plant, Unit, UnitConfigVersion
+
+    engine = _engine(get_settings())
+    table = Table("plant", "unit", "runner", "version", "effective from (UTC)", "rated power")
+    with session_scope(engine) as session:
+        for plant in session.scalars(select(Plant).order_by(Plant.code)):
+            for unit in session.scalars(select(Unit).where(Unit.plant_id == plant.id)
+                                        .order_by(Unit.code)):
+                newest = session.scalar(
+                    select(UnitConfigVersion).where(UnitConfigVersion.unit_id == unit.id)
+                    .order_by(UnitConfigVersion.version.desc()).limit(1))
+                if newest is None:
+                    continue
+                power = newest.config.get("rated_power", 0.0) / 1e6
+                table.add_row(plant.code, unit.code, unit.runner_type, str(newest.version),
+                              f"{newest.effective_from:%Y-%m-%d %H:%M}", f"{power:.1f} MW")
+    out.print(table)
+
+
+# --------------------------------------------------------------------------- ingest
+class _RowsPerSecond(ProgressColumn):
+    def render(self, task: Task) -> Text:
+        speed = task.finished_speed or task.speed
+        return Text(f"{speed:,.0f} rows/s" if speed else "", style="cyan")
+
+
+@contextmanager
+def _progress(enabled: bool) -> Iterator[Progress | None]:
+    if not enabled:
+        yield None
+        return
+    with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                  _RowsPerSecond(), TimeElapsedColumn(), console=err, transient=False) as bar:
+        yield bar
+
+
+def _expand(paths: Sequence[Path], settings: Settings) -> list[Path]:
+    """Files to ingest: files as given, folders as drop folders (complete files only)."""
+    from ingest.sources import DropFolder
+
+    found: list[Path] = []
+    for path in paths:
+        if path.is_dir():
+            scan = DropFolder(path, pattern="*", stable_seconds=settings.stable_seconds,
+                              marker_suffix=settings.marker_suffix).scan()
+            for waiting, why in scan.waiting.items():
+                err.print(f"{waiting}: skipped, {why}")
+            found.extend(scan.ready)
+        else:
+            found.append(path)
+    return found
+
+
+def run_ingest(engine: Engine, paths: Sequence[Path], settings: Settings, *,
+               plant_code: str | None = None, show_progress: bool = True) -> list:
+    """Ingest files with a progress bar (or plain progress lines when not on a terminal)."""
+    from ingest.pipeline import FileOutcome, ingest_file
+
+    outcomes: list[FileOutcome] = []
+    interactive = show_progress and err.is_terminal
+    with _progress(interactive) as bar:
+        for path in paths:
+            task = bar.add_task(path.name, total=None) if bar is not None else None
+            started = time.perf_counter()
+
+            def progress(done: int, total: int, _task=task, _path=path,
+                         _started=started) -> None:
+                if bar is not None and _task is not None:
+                    bar.update(_task, completed=done, total=total)
+                elif show_progress:
+                    rate = done / max(time.perf_counter() - _started, 1e-9)
+                    err.print(f"{_path.name}: {done:,}/{total:,} rows ({rate:,.0f} rows/s)",
+                              highlight=False)
+
+            if not path.exists():
+                from ingest.pipeline import FileOutcome as _Outcome
+
+                outcomes.append(_Outcome(path=path, status="skipped",
+                                         message="no such file"))
+                continue
+            outcome = ingest_file(engine, path, settings=settings, plant_code=plant_code,
+                                  progress=progress)
+            if bar is not None and task is not None:
+                bar.update(task, total=max(outcome.rows_total, 1),
+                           completed=max(outcome.rows_total, 1))
+            outcomes.append(outcome)
+    return outcomes
+
+
+def _summary_table(outcomes: list) -> Table:
+    table = Table("file", "plant", "status", "new", "unchanged", "revised", "rejected",
+                  "flagged cells", "s", "rows/s", title="ingestion summary")
+    styles = {"loaded": "green", "already": "dim", "quarantined": "red", "empty": "yellow",
+              "skipped": "yellow"}
+    for o in outcomes:
+        rate = o.rows_total / o.seconds if o.seconds > 0 and o.rows_total else 0
+        table.add_row(o.path.name, o.plant_code or "-", Text(o.status,
+                      style=styles.get(o.status, "")), f"{o.rows_new:,}",
+                      f"{o.rows_unchanged:,}", f"{o.rows_revised:,}", f"{o.rows_rejected:,}",
+                      f"{o.cells_flagged:,}", f"{o.seconds:.2f}", f"{rate:,.0f}")
+    return table
+
+
+def _print_outcomes(outcomes: list, *, max_problems: int = 8) -> None:
+    for o in outcomes:
+        line = f"{o.path}: {o.status}: {o.message}"
+        err.print(Text(line, style="red" if o.status == "quarantined" else ""))
+        for problem in o.problems[:max_problems]:
+            err.print(Text(f"    {problem}", style="dim"))
+        if len(o.problems) > max_problems:
+            err.print(Text(f"    ... {len(o.problems) - max_problems} more in "
+                           f"`hydrodrift files show {o.file_id}`", style="dim"))
+    out.print(_summary_table(outcomes))
+
+
+@app.command("ingest")
+def ingest(
+    paths: Annotated[list[Path], typer.Argument(help="Export files, or drop folders.")],
+    plant: Annotated[str | None, typer.Option(help="Plant code; default: recognised "
+                                              "from the file's tags.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress.")] = False,
+) -> None:
+    """Load SCADA export files into the store (idempotent; one transaction per file)."""
+    settings = get_settings()
+    engine = _engine(settings)
+    outcomes = run_ingest(engine, _expand(paths, settings), settings, plant_code=plant,
+                          show_progress=not quiet)
+    _print_outcomes(outcomes)
+    if any(o.status == "quarantined" for o in outcomes):
+        raise typer.Exit(1)
+
+
+# --------------------------------------------------------------------------- files
+@files_app.command("list")
+def files_list(
+    status: Annotated[str | None, typer.Option(help="loaded, empty or quarantined")] = None,
+    limit: Annotated[int, typer.Option(min=1)] = 50,
+) -> None:
+    """The most recent ingested files."""
+    from store.engine import session_scope
+    from store.models import IngestedFile
+
+    engine = _engine(get_settings())
+    table = Table("id", "file", "status", "rows", "new", "unchanged", "revised", "rejected",
+                  "flagged", "first (UTC)", "last (UTC)")
+    with session_scope(engine) as session:
+        query = select(IngestedFile).order_by(IngestedFile.id.desc()).limit(limit)
+        if status:
+            query = query.where(IngestedFile.status == status)
+        for f in session.scalars(query):
+            table.add_row(str(f.id), f.filename, f.status, f"{f.rows_total:,}",
+                          f"{f.rows_new:,}", f"{f.rows_unchanged:,}", f"{f.rows_revised:,}",
+                          f"{f.rows_rejected:,}", f"{f.rows_flagged:,}",
+                          f"{f.first_ts:%Y-%m-%d %H:%M}" if f.first_ts else "-",
+                          f"{f.last_ts:%Y-%m-%d %H:%M}" if f.last_ts else "-")
+    out.print(table)
+
+
+@files_app.command("show")
+def files_show(file_id: Annotated[int, typer.Argument(help="File id from `files list`.")]) -> None:
+    """One file's record and its full problem report."""
+    from store.engine import session_scope
+    from store.models import IngestedFile, QuarantinedFile
+
+    engine = _engine(get_settings())
+    with session_scope(engine) as session:
+        f = session.get(IngestedFile, file_id)
+        if f is None:
+            err.print(f"no ingested file with id {file_id}")
+            raise typer.Exit(1)
+        out.print(f"file #{f.id} {f.filename} ({f.size_bytes:,} bytes, sha256 {f.sha256})")
+        out.print(f"source {f.source}; status {f.status}; code {f.code_version}")
+        out.print(f"rows {f.rows_total:,}: {f.rows_new:,} new, {f.rows_unchanged:,} unchanged, "
+                  f"{f.rows_revised:,} revised, {f.rows_rejected:,} rejected; "
+                  f"{f.rows_flagged:,} flagged cells")
+        q = session.scalar(select(QuarantinedFile).where(QuarantinedFile.ingested_file_id == f.id))
+        if q is not None:
+            out.print(Text(f"quarantined: {q.reason}\ncopy kept at {q.stored_path}", style="red"))
+        for p in (f.report or {}).get("problems", []):
+            where = f.filename + (f":{p['line']}" if p.get("line") else "")
+            if p.get("column"):
+                where += f", column {p['column']!r}"
+            out.print(f"{where}: {p['severity']}: {p['message']}", highlight=False)
+        for key, n in sorted((f.report or {}).get("counts", {}).items()):
+            out.print(f"  {key}: {n}", highlight=False)
+
+
+# --------------------------------------------------------------------------- demo
+@app.command("demo")
+def demo(
+    root: Annotated[Path | None, typer.Option(help="Where to write the demo fleet; "
+                                              "default: <data_dir>/demo.")] = None,
+    days: Annotated[int, typer.Option(min=7, max=731, help="Days of plant data.")] = 365,
+    seed: Annotated[int, typer.Option(help="Random seed of the scenario.")] = 20261201,
+) -> None:
+    """Generate the fictional demo fleet, import its plants and ingest a year of exports."""
+    from hydrodrift.demofleet import generate_demo
+    from ingest.registry import import_plant_file
+
+    settings = get_settings()
+    root = root or settings.data_dir / "demo"
+    t0 = time.perf_counter()
+    err.print(f"writing the demo fleet ({days} days of 10-minute data) to {root} ...")
+    manifest = generate_demo(root, seed=seed, days=days)
+    t_gen = time.perf_counter() - t0
+    err.print(f"  {len(manifest.export_files)} export files, {manifest.rows_written:,} rows "
+              f"in {t_gen:.1f} s; ground truth in {manifest.truth_file}")
+    engine = _engine(settings)
+    for plant_path in manifest.plant_files:
+        out.print(f"{plant_path.name}: {import_plant_file(engine, plant_path).summary()}")
+    t1 = time.perf_counter()
+    outcomes = run_ingest(engine, manifest.export_files, settings)
+    t_ingest = time.perf_counter() - t1
+    _print_outcomes(outcomes, max_problems=3)
+    from store.engine import session_scope
+    from store.models import Sample
+
+    with session_scope(engine) as session:
+        stored = session.scalar(select(func.count()).select_from(Sample))
+    total = sum(o.rows_total for o in outcomes)
+    out.print(
+        f"demo: {len(outcomes)} files, {total:,} data rows read, {stored:,} unit-samples in "
+        f"the store, {sum(o.cells_flagged for o in outcomes):,} flagged cells, "
+        f"{sum(o.rows_rejected for o in outcomes):,} rejected rows, "
+        f"{sum(o.status == 'quarantined' for o in outcomes)} quarantined; generated in "
+        f"{t_gen:.1f} s, ingested in {t_ingest:.1f} s, total {time.perf_counter() - t0:.1f} s"
+    )
+    out.print(f"database: {engine.url.render_as_string(hide_password=True)}")
+    out.print(Text(SAFETY_NOTE, style="italic"))
+
+
+def main(argv: Sequence[str] | None = None) -> None:
+    """Entry point of the ``hydrodrift`` console script."""
+    try:
+        app(args=list(argv) if argv is not None else None, prog_name="hydrodrift")
+    except KeyboardInterrupt:
+        err.print("interrupted; every file is all-or-nothing, so rerun to complete")
+        sys.exit(130)
+
+
+if __name__ == "__main__":
+    main()
