@@ -57,7 +57,7 @@ def test_old_file_seen_first_time_is_ready(tmp_path: Path) -> None:
 
 
 def test_missing_folder_is_a_clear_error(tmp_path: Path) -> None:
-    with pytest.raises(FileNotFoundError, match="drop folder .* does not exist"):
+    with pytest.raises(FileNotFoundError, match=r"drop folder .* does not exist"):
         DropFolder(tmp_path / "nope").scan()
 
 
@@ -65,7 +65,7 @@ class _Flaky(BaseHTTPRequestHandler):
     calls = 0
     fail_first = 2
 
-    def do_GET(self) -> None:  # noqa: N802 (http.server's name)
+    def do_GET(self) -> None:
         type(self).calls += 1
         if self.path.endswith("missing.csv"):
             self.send_response(404)
