@@ -168,10 +168,11 @@ def ingest_file(
         chosen = next((p for p in plants if match is not None and p[1] is match), None)
 
     if print_.size_bytes == 0:
-        report.add(Problem(kind="empty_file",
-                           message="file is empty (0 bytes); expected a header line and data"))
+        empty = Problem(kind="empty_file",
+                        message="file is empty (0 bytes); expected a header line and data")
+        report.add(empty)
         return _quarantine(engine, path, print_, report, settings, source, chosen,
-                           "empty file", started)
+                           empty.message, started)
     if chosen is None:
         report.add(Problem(kind="unknown_plant",
                            message="no imported plant's tag map matches this file's tags; "
