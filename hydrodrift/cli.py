@@ -250,6 +250,49 @@ def ingest(
         raise typer.Exit(1)
 
 
+@app.command("pull")
+def pull() -> None:
+    """Poll every plant's configured sources once (drop folders, HTTP) and ingest what is new."""
+    from ingest.pipeline import FileOutcome
+    from ingest.registry import stored_plant_file
+    from ingest.sources import DropFolder, PullError, pull_http
+    from store.engine import session_scope
+    from store.models import Plant
+
+    settings = get_settings()
+    engine = _engine(settings)
+    with session_scope(engine) as session:
+        plants = [(p.code, stored_plant_file(session, p)[0])
+                  for p in session.scalars(select(Plant).order_by(Plant.code))]
+    outcomes: list[FileOutcome] = []
+    for code, plant_file in plants:
+        for source in plant_file.sources:
+            if source.kind == "folder" and source.path:
+                try:
+                    scan = DropFolder(Path(source.path), pattern=source.pattern,
+                                      stable_seconds=settings.stable_seconds,
+                                      marker_suffix=settings.marker_suffix).scan()
+                except FileNotFoundError as exc:
+                    err.print(Text(f"plant {code}: {exc}", style="red"))
+                    continue
+                for waiting, why in scan.waiting.items():
+                    err.print(f"{waiting}: skipped, {why}")
+                outcomes += run_ingest(engine, scan.ready, settings, plant_code=code)
+            elif source.kind == "http" and source.url:
+                try:
+                    path = pull_http(source.url, settings.data_dir / "pulled" / code,
+                                     retries=settings.http_retries,
+                                     backoff_s=settings.http_backoff_s)
+                except PullError as exc:
+                    err.print(Text(f"plant {code}: {exc}", style="red"))
+                    continue
+                outcomes += run_ingest(engine, [path], settings, plant_code=code)
+    if not outcomes:
+        out.print("no source had a complete new file")
+        return
+    _print_outcomes(outcomes)
+
+
 # --------------------------------------------------------------------------- files
 @files_app.command("list")
 def files_list(

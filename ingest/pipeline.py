@@ -11,12 +11,14 @@ and nothing of it is loaded.
 from __future__ import annotations
 
 import hashlib
+import queue
 import shutil
+import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import pandas as pd
 from sqlalchemy import Connection, Engine, insert, select, update
@@ -36,6 +38,53 @@ from store.models import IngestedFile, Plant, QuarantinedFile, Unit, utc_now
 ProgressCallback = Callable[[int, int], None]
 
 _HASH_BLOCK = 1 << 20
+_T = TypeVar("_T")
+_DONE = object()
+
+
+def prefetch(items: Iterator[_T], depth: int = 2) -> Iterator[_T]:
+    """Run ``items`` in a background thread, at most ``depth`` ahead of the consumer.
+
+    Reading and checking the next chunk (pandas and numpy, mostly outside the GIL) then
+    overlaps with loading the current one (the database's work), on two cores about
+    halving a file's time. Memory stays bounded by ``depth`` chunks. An exception in the
+    producer is raised in the consumer; a consumer that stops early stops the producer.
+    """
+    buffer: queue.Queue[Any] = queue.Queue(maxsize=depth)
+    stop = threading.Event()
+
+    def produce() -> None:
+        try:
+            for item in items:
+                while not stop.is_set():
+                    try:
+                        buffer.put(item, timeout=0.1)
+                        break
+                    except queue.Full:
+                        continue
+                if stop.is_set():
+                    return
+            buffer.put(_DONE)
+        except BaseException as exc:  # handed to the consumer, which re-raises it
+            buffer.put(exc)
+
+    worker = threading.Thread(target=produce, name="ingest-reader", daemon=True)
+    worker.start()
+    try:
+        while True:
+            item = buffer.get()
+            if item is _DONE:
+                return
+            if isinstance(item, BaseException):
+                raise item
+            yield item
+    finally:
+        stop.set()
+        while worker.is_alive():
+            try:
+                buffer.get_nowait()
+            except queue.Empty:
+                worker.join(timeout=0.05)
 
 
 @dataclass
@@ -195,8 +244,9 @@ def ingest_file(
                       started_at=utc_now(), code_version=__version__)],
             ).scalar_one()
             first_ts = last_ts = None
-            for chunk in iter_canonical_chunks(path, plant_file, report,
-                                               chunk_rows=settings.ingest_chunk_rows):
+            chunks = iter_canonical_chunks(path, plant_file, report,
+                                           chunk_rows=settings.ingest_chunk_rows)
+            for chunk in prefetch(chunks):
                 _check_bad_rows(report, settings, final=False)
                 frame = chunk.frame
                 lines_done += chunk.data_lines

@@ -1141,7 +1141,7 @@ def detect_plant(path: Path, plants: Sequence[PlantFile]) -> PlantFile | None:
     """
     path = Path(path)
     best: PlantFile | None = None
-    best_hits = 0
+    best_hits: float = 0
     for plant in plants:
         fmt = plant.export
         try:
@@ -1157,18 +1157,30 @@ def detect_plant(path: Path, plants: Sequence[PlantFile]) -> PlantFile | None:
             return None
         if len(lines) <= fmt.skip_lines:
             continue
-        header = _split(lines[fmt.skip_lines], fmt.delimiter)
-        if fmt.layout == "wide":
-            names = set(header)
-        else:
-            if fmt.tag_column not in header:
-                continue
-            column = header.index(fmt.tag_column)
-            names = set()
-            for row in csv.reader(lines[fmt.skip_lines + 1:], delimiter=fmt.delimiter):
-                if len(row) > column:
-                    names.add(row[column].strip())
-        hits = len(names & set(plant.tags))
+        hits = _tag_hits(lines, fmt, set(plant.tags), fmt.delimiter)
+        if hits == 0:
+            # A file of this plant written with another delimiter still belongs to it: the
+            # reader then says which delimiter it found, instead of "no plant matches".
+            hits = max(_tag_hits(lines, fmt, set(plant.tags), other) for other in
+                       _OTHER_DELIMITERS if other != fmt.delimiter) * 0.5
         if hits > best_hits:
             best, best_hits = plant, hits
     return best
+
+
+_OTHER_DELIMITERS = (",", ";", "\t", "|")
+
+
+def _tag_hits(lines: list[str], fmt: ExportFormat, tags: set[str], delimiter: str) -> int:
+    """How many of ``tags`` the first lines name, read with ``delimiter``."""
+    header = _split(lines[fmt.skip_lines], delimiter)
+    if fmt.layout == "wide":
+        return len(set(header) & tags)
+    if fmt.tag_column not in header:
+        return 0
+    column = header.index(fmt.tag_column)
+    names = set()
+    for row in csv.reader(lines[fmt.skip_lines + 1:], delimiter=delimiter):
+        if len(row) > column:
+            names.add(row[column].strip())
+    return len(names & tags)

@@ -162,7 +162,10 @@ def _sample_columns() -> dict[str, Any]:
             "``quality`` holds :class:`store.signals.Quality` bits; ``flagged_signals`` one "
             "bit per signal in the order of :data:`store.signals.SIGNALS`."
         ),
-        "unit_id": mapped_column(ForeignKey("units.id"), primary_key=True),
+        # No foreign key to units on purpose: on PostgreSQL it cost more than the COPY
+        # itself (bench/ingest.py). store.bulk.load_samples checks the unit ids of every
+        # load against `units` in one query, and units are never deleted.
+        "unit_id": mapped_column(Integer, primary_key=True),
         "ts": mapped_column(UtcDateTime, primary_key=True),
         "quality": mapped_column(Integer, default=0, nullable=False),
         "flagged_signals": mapped_column(BigInteger, default=0, nullable=False),

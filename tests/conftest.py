@@ -46,6 +46,7 @@ def pg_schema_engine() -> Iterator[Engine]:
         pytest.skip(reason)
     schema = f"hd_test_{os.getpid()}_{secrets.token_hex(3)}"
     engine = make_engine(PG_URL, schema=schema)
+    engine.info_schema = schema  # type: ignore[attr-defined]  # for subprocess tests
     upgrade(engine)
     try:
         yield engine
@@ -76,3 +77,16 @@ def engine(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[Engine]:
         pg_engine: Engine = request.getfixturevalue("pg_schema_engine")
         _truncate_all(pg_engine)
         yield pg_engine
+
+
+@pytest.fixture
+def engine_env(engine: Engine, tmp_path: Path) -> dict[str, str]:
+    """Environment for a ``hydrodrift`` subprocess that uses the same database as ``engine``."""
+    env = {k: v for k, v in os.environ.items() if not k.startswith("HYDRODRIFT_")}
+    env["HYDRODRIFT_DATA_DIR"] = str(tmp_path / "data")
+    if engine.dialect.name == "sqlite":
+        env["HYDRODRIFT_DATABASE_URL"] = engine.url.render_as_string(hide_password=False)
+    else:
+        env["HYDRODRIFT_DATABASE_URL"] = PG_URL
+        env["HYDRODRIFT_DATABASE_SCHEMA"] = engine.info_schema  # type: ignore[attr-defined]
+    return env

@@ -151,10 +151,6 @@ def upgrade() -> None:
         sa.Column("thrust_bearing_temperature", sa.Float(), nullable=True),
         sa.Column("cooling_water_temperature", sa.Float(), nullable=True),
         sa.Column("water_temperature", sa.Float(), nullable=True),
-        sa.ForeignKeyConstraint(
-            ["unit_id"],
-            ["units.id"],
-        ),
         sa.PrimaryKeyConstraint("unit_id", "ts"),
         sqlite_with_rowid=False,
     )
