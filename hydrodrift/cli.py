@@ -36,8 +36,9 @@ app.add_typer(db_app, name="db")
 app.add_typer(plant_app, name="plant")
 app.add_typer(files_app, name="files")
 
-out = Console()
-err = Console(stderr=True)
+# Piped or redirected output is not folded to 80 columns: tables stay one row per file.
+out = Console(width=None if sys.stdout.isatty() else 160)
+err = Console(stderr=True, width=None if sys.stderr.isatty() else 160)
 
 SAFETY_NOTE = (
     "hydrodrift advises; it never commands a unit. Operating limits, protection settings, "

@@ -315,9 +315,12 @@ def spikes(
     Notes
     -----
     ``spike_i = |x_i - m_i| > k * 1.4826 * MAD_i + floor`` with ``m_i`` the median and
-    ``MAD_i`` the median absolute deviation of ``x_{i-window} .. x_{i-1}``. The test is
-    causal (only earlier samples), so the first samples after a genuine step change are
-    flagged too until the window has caught up; the floor keeps ordinary load changes out.
+    ``MAD_i`` the median absolute deviation of ``x_{i-window} .. x_{i-1}``, and, so that
+    a genuine step change (start, stop, set-point change) is not taken for a spike, the
+    next sample must be back, nearer the median than half the excursion:
+    ``|x_{i+1} - m_i| < |x_i - m_i| / 2`` (a step stays out, whatever its size). Only
+    isolated one-sample excursions are flagged; a sample whose successor is not yet known
+    (the last of a chunk) is not.
 
     Only candidates are evaluated exactly: since ``m_i`` lies between the window's minimum
     and maximum, ``|x_i - m_i| > floor`` needs ``x_i - min > floor`` or
@@ -352,7 +355,14 @@ def spikes(
             median = np.nanmedian(windows, axis=1)
             mad = np.nanmedian(np.abs(windows - median[:, None]), axis=1)
             threshold = k * MAD_TO_SIGMA * mad + floor
-            mask[where] = np.abs(full[where] - median) > threshold
+            departs = np.abs(full[where] - median) > threshold
+            # A spike goes out and comes back: the next sample is back more than halfway.
+            # A step (set-point change, start, stop, load rejection) stays out. The last
+            # sample has no successor yet: it is not flagged (at a chunk boundary this
+            # misses at most one spike per signal).
+            following = np.append(full, np.nan)[where + 1]
+            returns = np.abs(following - median) < 0.5 * np.abs(full[where] - median)
+            mask[where] = departs & returns
     return mask[offset:]
 
 

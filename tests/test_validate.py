@@ -61,6 +61,14 @@ def test_spikes_flags_isolated_jump_only() -> None:
     assert not v.spikes(y, floor=0.5).any()
 
 
+def test_a_step_is_not_a_spike() -> None:
+    # a unit start or set-point change: power jumps and stays (from the demo's false alarms)
+    x = np.r_[np.full(30, 0.0), np.full(30, 60e6)] + np.random.default_rng(1).normal(0, 1e4, 60)
+    assert not v.spikes(x, floor=8e6).any()
+    x[45] += 40e6  # but an isolated excursion on the new level is one
+    assert list(np.flatnonzero(v.spikes(x, floor=8e6))) == [45]
+
+
 def test_spikes_use_prior_tail() -> None:
     tail = np.full(15, 50.0)
     values = np.array([80.0, 50.0, 50.0])
