@@ -51,6 +51,7 @@ from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -829,15 +830,8 @@ def _iter_wide(reader: _Reader) -> Iterator[CanonicalChunk]:
         report.rows_read += n - int(blank.sum())
         reader.pending_lines += n
         reject = blank.copy()
-        if truncated is not None:
-            cut = lines == truncated
-            if cut.any():
-                _add_rows(report, "truncated_line", lines[cut],
-                          lambda i: f"last line is cut short ({reader.facts.last_line_fields}"
-                                    f" of {len(header)} fields, no line break at the end of "
-                                    "the file; was it still being written?); row rejected",
-                          column=None)
-                reject |= cut
+        cut = _truncated_rows(report, reader, lines, truncated, len(header))
+        reject |= cut
         times = reader.times(text, lines, None, reject)
         rows = times.assign(line=lines)
         for name in mapped:
@@ -923,16 +917,9 @@ def _iter_long(reader: _Reader) -> Iterator[CanonicalChunk]:
                 entry = unmapped.setdefault(str(tag), [0, int(row["min"])])
                 entry[0] += int(row["size"])
         reject = blank | is_unmapped
-        if truncated is not None:
-            cut = lines == truncated
-            if cut.any():
-                _add_rows(report, "truncated_line", lines[cut],
-                          lambda i: f"last line is cut short ({reader.facts.last_line_fields}"
-                                    f" of {len(header)} fields, no line break at the end of "
-                                    "the file; was it still being written?); row rejected",
-                          column=None)
-                report.rows_rejected += int((cut & ~reject).sum())
-                reject |= cut
+        cut = _truncated_rows(report, reader, lines, truncated, len(header))
+        report.rows_rejected += int((cut & ~reject).sum())
+        reject |= cut
         code_int = np.where(np.isnan(codes), -1, codes).astype(np.int64)
         skip_ts = reject.copy()
         times = reader.times(text, lines, code_int, skip_ts)
@@ -1131,6 +1118,19 @@ def iter_canonical_chunks(
     if report.rows_read == 0:
         report.add(Problem(kind="no_data", severity="warning", line=facts.header_line,
                            message="the file has a header but no data lines"))
+
+
+def _truncated_rows(report: FileReport, reader: Any, lines: np.ndarray,
+                    truncated: int | None, header_fields: int) -> np.ndarray:
+    """Mask of the cut-short last line among ``lines`` (reported), all False if none."""
+    cut = np.zeros(len(lines), dtype=bool) if truncated is None else lines == truncated
+    if cut.any():
+        _add_rows(report, "truncated_line", lines[cut],
+                  lambda i: f"last line is cut short ({reader.facts.last_line_fields}"
+                            f" of {header_fields} fields, no line break at the end of "
+                            "the file; was it still being written?); row rejected",
+                  column=None)
+    return cut
 
 
 def detect_plant(path: Path, plants: Sequence[PlantFile]) -> PlantFile | None:

@@ -301,19 +301,30 @@ def _merged_quality(old: str, mask: str, new_quality: str) -> str:
 # --------------------------------------------------------------------------- SQLite
 
 
+def _merge_clauses(signals: tuple[str, ...], *, old: str, new: str, mask: str,
+                   differs: str) -> tuple[list[str], list[str]]:
+    """SET assignments and "something changed" tests of the merge, for either dialect.
+
+    ``old`` / ``new`` are the stored and incoming row's aliases, ``mask`` the SQL of the
+    incoming row's provided mask, ``differs`` the dialect's NULL-safe inequality.
+    """
+    sets = [f"{name} = CASE WHEN ({mask} & {SIGNAL_BIT[name]}) <> 0 "
+            f"THEN {new}.{name} ELSE {old}.{name} END" for name in signals]
+    flags = _merged_flags(old, mask, f"{new}.flagged_signals")
+    quality = _merged_quality(old, mask, f"{new}.quality")
+    sets += [f"flagged_signals = {flags}", f"quality = {quality}"]
+    changed = [f"(({mask} & {SIGNAL_BIT[name]}) <> 0 AND {old}.{name} {differs} {new}.{name})"
+               for name in signals]
+    changed += [f"{old}.flagged_signals <> {flags}", f"{old}.quality <> {quality}"]
+    return sets, changed
+
+
 def _sqlite_upsert_sql(signals: tuple[str, ...]) -> str:
     """The upsert; parameters ?1..?n are the row's columns, ?(n+1) its provided mask."""
     columns = ["unit_id", "ts", *signals, "quality", "flagged_signals", "source_file_id"]
-    mask = f"?{len(columns) + 1}"
-    sets = [f"{name} = CASE WHEN ({mask} & {SIGNAL_BIT[name]}) <> 0 "
-            f"THEN excluded.{name} ELSE samples.{name} END" for name in signals]
-    flags = _merged_flags("samples", mask, "excluded.flagged_signals")
-    quality = _merged_quality("samples", mask, "excluded.quality")
-    sets += [f"flagged_signals = {flags}", f"quality = {quality}",
-             "source_file_id = excluded.source_file_id"]
-    changed = [f"(({mask} & {SIGNAL_BIT[name]}) <> 0 AND samples.{name} IS NOT excluded.{name})"
-               for name in signals]
-    changed += [f"samples.flagged_signals <> {flags}", f"samples.quality <> {quality}"]
+    sets, changed = _merge_clauses(signals, old="samples", new="excluded",
+                                   mask=f"?{len(columns) + 1}", differs="IS NOT")
+    sets.append("source_file_id = excluded.source_file_id")
     placeholders = ", ".join(f"?{i}" for i in range(1, len(columns) + 1))
     return (f"INSERT INTO samples ({', '.join(columns)}) VALUES ({placeholders}) "
             "ON CONFLICT (unit_id, ts) DO UPDATE SET " + ", ".join(sets) +
@@ -478,16 +489,9 @@ def _dt(ts_us: int) -> datetime:
 
 def _pg_merge_sql(signals: tuple[str, ...]) -> tuple[str, str]:
     """``(UPDATE, INSERT)`` from the staging table; parameter %(sfid)s is the file id."""
-    mask = "st.provided_mask"
-    sets = [f"{name} = CASE WHEN ({mask} & {SIGNAL_BIT[name]}) <> 0 "
-            f"THEN st.{name} ELSE t.{name} END" for name in signals]
-    flags = _merged_flags("t", mask, "st.flagged_signals")
-    quality = _merged_quality("t", mask, "st.quality")
-    sets += [f"flagged_signals = {flags}", f"quality = {quality}",
-             "source_file_id = CAST(%(sfid)s AS integer)"]
-    changed = [f"(({mask} & {SIGNAL_BIT[name]}) <> 0 AND t.{name} IS DISTINCT FROM st.{name})"
-               for name in signals]
-    changed += [f"t.flagged_signals <> {flags}", f"t.quality <> {quality}"]
+    sets, changed = _merge_clauses(signals, old="t", new="st", mask="st.provided_mask",
+                                   differs="IS DISTINCT FROM")
+    sets.append("source_file_id = CAST(%(sfid)s AS integer)")
     update = (f"UPDATE samples AS t SET {', '.join(sets)} FROM {_STAGE_TABLE} AS st "
               "WHERE t.unit_id = st.unit_id AND t.ts = st.ts AND (" +
               " OR ".join(changed) + ")")
