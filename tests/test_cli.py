@@ -64,3 +64,24 @@ def test_ingest_summary_files_list_and_show(env: Path) -> None:
     assert shown.exit_code == 0 and "duplicate_timestamp" in shown.output
     missing = runner.invoke(app, ["files", "show", "99"])
     assert missing.exit_code == 1 and "no ingested file with id 99" in missing.output
+
+
+def test_pull_ingests_complete_files_of_a_drop_folder(env: Path) -> None:
+    drop = env / "drop"
+    drop.mkdir()
+    plant = env / "plant.toml"
+    plant.write_text((TEST_DATA / "plants" / "test_wide.toml").read_text().replace(
+        "[[units]]", f'[[sources]]\nkind = "folder"\npath = "{drop}"\n\n[[units]]', 1))
+    assert runner.invoke(app, ["plant", "import", str(plant)]).exit_code == 0
+    done = drop / "day.csv"
+    done.write_text("timestamp,P1,HW\n2026-03-02T00:00:00+00:00,40.5,785.1\n"
+                    "2026-03-02T00:10:00+00:00,41.0,785.2\n")
+    (drop / "day.csv.ready").write_bytes(b"")  # the exporter's completion marker
+    growing = drop / "next.csv"
+    growing.write_text("timestamp,P1,HW\n")  # just created, no marker: not read yet
+    result = runner.invoke(app, ["pull"])
+    assert result.exit_code == 0, result.output
+    assert "day.csv" in result.output and "loaded" in result.output
+    assert "next.csv: skipped, still changing or too new" in result.output
+    again = runner.invoke(app, ["pull"])
+    assert "already ingested" in again.output
