@@ -33,7 +33,8 @@ Assumptions and behaviour, in brief:
   warning and its values are ignored for that unit.
 - A unit's row is produced only where at least one of its cells has a value or a flag.
 - **Memory:** a wide file is streamed in chunks of ``chunk_rows`` lines; across chunks the
-  reader keeps the seen timestamps (8 bytes per row plus a line number, to find
+  reader keeps the seen timestamps of the last two chunks while the file is in time
+  order, and of every chunk once it is not (8 bytes per row plus a line number, to find
   duplicates), the fold counts, and the validators' tails. Rows are held back only while a
   DST fold time waits for its second occurrence or a run of identical values may still
   become a stuck run (both bounded). A long file is accumulated as compact arrays
@@ -373,6 +374,9 @@ class _Reader:
     facts: FileFacts
     fold: tsm.FoldState = field(default_factory=tsm.FoldState)
     seen: list[_SeenRun] = field(default_factory=list)
+    #: newest timestamp of the runs let go while the file was in time order (see dedupe_rows)
+    released_high: int | None = None
+    released_warned: bool = False
     last_ts: int | None = None
     out_of_order_warned: bool = False
     held: list[pd.DataFrame] = field(default_factory=list)
@@ -630,6 +634,21 @@ class _Reader:
             self.out_of_order_warned = True
         self.last_ts = int(ts[-1])
         order = np.argsort(ts, kind="stable")
+        if (self.released_high is not None and not self.released_warned
+                and int(ts[order[0]]) <= self.released_high):
+            self.report.add(Problem(
+                kind="out_of_order", severity="warning", line=int(lines[order[0]]),
+                column=self.fmt.timestamp_column,
+                message="rows reach back more than one chunk into the file; a repeat of an "
+                        "instant that far back is merged as a revision, not rejected"))
+            self.released_warned = True
+        in_order = (not self.out_of_order_warned and self.seen
+                    and int(ts[order[0]]) > max(run.high for run in self.seen))
+        if in_order:
+            # A file in time order cannot repeat an instant of a run before the newest one:
+            # let those go, so that memory stays bounded whatever the file's size.
+            self.released_high = max(run.high for run in self.seen)
+            self.seen = self.seen[-1:]
         self.seen.append(_SeenRun(low=int(ts[order[0]]), high=int(ts[order[-1]]),
                                   ts=ts[order], lines=lines[order]))
         return frame.iloc[order].reset_index(drop=True)

@@ -167,6 +167,25 @@ def test_duplicate_across_chunk_boundary(tmp_path: Path) -> None:
     assert report.rows_rejected == 1 and report.rows_read == 11
 
 
+def test_in_order_file_lets_old_chunks_go_and_says_so_if_rows_reach_back(
+    tmp_path: Path,
+) -> None:
+    # Memory stays bounded for in-order files: only the newest chunks' timestamps are kept.
+    # A row that reaches further back is not rejected as a duplicate but named in a warning
+    # (the store then merges it as a revision).
+    plant = make_plant('layout = "wide"\ntime_basis = "utc"', WIDE_TAGS)
+    path = tmp_path / "late.csv"
+    times = pd.date_range("2026-01-05", periods=12, freq="10min", tz="UTC")
+    rows = [f"{t.isoformat()},{50 + i * 0.37:.2f}" for i, t in enumerate(times)]
+    rows.append(f"{times[0].isoformat()},51.5")  # line 14 repeats line 2, three chunks later
+    path.write_text("timestamp,G1_P\n" + "\n".join(rows) + "\n")
+    frame, report, chunks = read(path, plant, chunk_rows=4)
+    assert len(chunks) >= 3
+    late = [p for p in report.problems if "more than one chunk" in p.message]
+    assert len(late) == 1 and late[0].line == 14 and late[0].severity == "warning"
+    assert report.rows_rejected == 0 and len(frame) == 13
+
+
 def test_stuck_run_across_chunk_boundary(tmp_path: Path) -> None:
     plant = make_plant('layout = "wide"\ntime_basis = "utc"', WIDE_TAGS)
     path = tmp_path / "stuck.csv"
