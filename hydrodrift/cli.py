@@ -194,10 +194,8 @@ def run_ingest(engine: Engine, paths: Sequence[Path], settings: Settings, *,
                               highlight=False)
 
             if not path.exists():
-                from ingest.pipeline import FileOutcome as _Outcome
-
-                outcomes.append(_Outcome(path=path, status="skipped",
-                                         message="no such file"))
+                outcomes.append(FileOutcome(path=path, status="skipped",
+                                            message="no such file"))
                 continue
             outcome = ingest_file(engine, path, settings=settings, plant_code=plant_code,
                                   progress=progress)

@@ -32,7 +32,7 @@ from ingest.registry import stored_plant_file
 from ingest.report import ExportFormatError, FileReport, Problem
 from store.bulk import LoadCounts, load_samples
 from store.engine import session_scope
-from store.models import IngestedFile, Plant, QuarantinedFile, Unit, utc_now
+from store.models import IngestedFile, Plant, QuarantinedFile, utc_now
 
 #: progress(data_lines_done, data_lines_total_estimate)
 ProgressCallback = Callable[[int, int], None]
@@ -105,12 +105,6 @@ class FileOutcome:
     seconds: float = 0.0
     problems: list[str] = field(default_factory=list)
 
-    @property
-    def changed_store(self) -> bool:
-        return self.status in ("loaded", "quarantined") and (
-            self.rows_new + self.rows_revised > 0 or self.status == "quarantined"
-        )
-
 
 @dataclass(frozen=True)
 class FileFingerprint:
@@ -151,7 +145,6 @@ def _plants_in_store(engine: Engine) -> list[tuple[Plant, PlantFile, int]]:
         for plant in plants:
             plant_file, version = stored_plant_file(session, plant)
             out.append((plant, plant_file, version))
-            _ = [u.id for u in plant.units]  # load while the session is open
         return out
 
 
@@ -366,10 +359,3 @@ def _quarantine(engine: Engine, path: Path, print_: FileFingerprint, report: Fil
         cells_flagged=report.cells_flagged, problems=report.lines(),
         seconds=time.perf_counter() - started,
     )
-
-
-def unit_codes(engine: Engine, plant_code: str) -> list[str]:
-    """Codes of a plant's units (helper for tools and tests)."""
-    with session_scope(engine) as session:
-        return list(session.scalars(select(Unit.code).join(Plant).where(Plant.code == plant_code)
-                                    .order_by(Unit.code)))
