@@ -391,6 +391,92 @@ def demo(
     out.print(Text(SAFETY_NOTE, style="italic"))
 
 
+# --------------------------------------------------------------------------- compute, report
+@app.command("compute")
+def compute_cmd(
+    plant: Annotated[str | None, typer.Option(help="Only this plant's files.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Only the summary.")] = False,
+) -> None:
+    """Compute efficiency windows and weekly drift for samples not yet computed."""
+    from jobs.compute import compute
+
+    settings = get_settings()
+    engine = _engine(settings)
+    try:
+        summary = compute(engine, settings, plant_code=plant,
+                          progress=None if quiet else (lambda line: err.print(line)))
+    except KeyError as exc:
+        err.print(f"error: {exc.args[0]}")
+        raise typer.Exit(2) from None
+    out.print(summary.line())
+    for problem in summary.problems:
+        err.print(f"error: {problem}")
+    if summary.problems:
+        raise typer.Exit(1)
+
+
+def _fmt(value: float | None, spec: str) -> str:
+    return "-" if value is None or value != value else format(value, spec)
+
+
+def report_table(week: str, frame) -> Table:
+    """The weekly report as a rich table (points, MWh, money)."""
+    currency = frame["currency"].iloc[0] if len(frame) else ""
+    table = Table(title=f"Weekly efficiency drift, {week} (ISO week, plant time), "
+                  "sorted by lost energy", title_justify="left")
+    for name, justify in (("plant", "left"), ("unit", "left"), ("runner", "left"),
+                          ("steady h", "right"), ("deviation pt (90% CI)", "right"),
+                          ("trend pt/yr", "right"), ("last change point", "left"),
+                          ("lost MWh (band)", "right"), (f"lost {currency}", "right"),
+                          ("cum. MWh", "right"), ("ref", "right")):
+        table.add_column(name, justify=justify)
+    for r in frame.itertuples(index=False):
+        deviation = (f"{_fmt(r.deviation_pt, '+.2f')} ({_fmt(r.deviation_low_pt, '+.2f')} .. "
+                     f"{_fmt(r.deviation_high_pt, '+.2f')})") if r.deviation_pt == \
+            r.deviation_pt and r.deviation_pt is not None else "-"
+        change = "-" if not r.change_point_week else \
+            f"{r.change_point_week} ({_fmt(r.change_point_pt, '+.2f')} pt)"
+        lost = (f"{_fmt(r.lost_mwh, ',.1f')} ({_fmt(r.lost_mwh_low, ',.1f')} .. "
+                f"{_fmt(r.lost_mwh_high, ',.1f')})")
+        table.add_row(r.plant, r.unit, r.runner, _fmt(r.steady_hours, ".1f"), deviation,
+                      _fmt(r.trend_pt_per_year, "+.2f"), change, lost,
+                      _fmt(r.lost_money, ",.0f"), _fmt(r.cumulative_lost_mwh, ",.0f"),
+                      f"v{r.reference_version}")
+    return table
+
+
+@app.command("report")
+def report_cmd(
+    week: Annotated[str | None, typer.Option(
+        help="ISO week YYYY-Www; default: the latest complete week in the store.")] = None,
+    fmt: Annotated[str, typer.Option("--format", help="table, csv or json.")] = "table",
+) -> None:
+    """Print the fleet's weekly drift table, sorted by lost energy."""
+    from jobs.report import ReportError, render_report, weekly_report
+    from store.engine import session_scope
+
+    if fmt not in ("table", "csv", "json"):
+        err.print(f"error: --format {fmt!r}: expected table, csv or json")
+        raise typer.Exit(2)
+    settings = get_settings()
+    engine = _engine(settings)
+    try:
+        with session_scope(engine) as session:
+            week, frame = weekly_report(session, week)
+    except ReportError as exc:
+        err.print(f"error: {exc}")
+        raise typer.Exit(1) from None
+    if fmt == "table":
+        out.print(report_table(week, frame))
+        out.print("Deviation: index efficiency minus reference at the same head and power, "
+                  "median over the week's steady windows; lost energy: the week's generation "
+                  "times the median relative loss.")
+        out.print(Text(SAFETY_NOTE + " Efficiency figures are index-test estimates: confirm "
+                       "a refurbishment decision with an absolute test.", style="italic"))
+    else:
+        sys.stdout.write(render_report(week, frame, fmt, caution=SAFETY_NOTE))
+
+
 def main(argv: Sequence[str] | None = None) -> None:
     """Entry point of the ``hydrodrift`` console script."""
     try:

@@ -61,6 +61,26 @@ class Settings(BaseSettings):
     http_backoff_s: float = Field(
         default=1.0, ge=0.0, description="HTTP pull: first backoff, doubled per retry."
     )
+    energy_price: float = Field(
+        default=60.0, ge=0.0, description="Price of lost energy, per MWh, in `currency`."
+    )
+    currency: str = Field(default="EUR", min_length=1, max_length=8)
+    baseline_days: float = Field(
+        default=28.0, gt=0.0,
+        description="Index constant: days of steady windows, from the first one of a "
+        "reference epoch, over which the index efficiency is matched to the reference.",
+    )
+    baseline_min_hours: float = Field(
+        default=24.0, gt=0.0,
+        description="Index constant: fewest steady hours the baseline needs; it is extended "
+        "week by week until it has them.",
+    )
+    bootstrap_resamples: int = Field(
+        default=1000, ge=100, description="Weekly drift: bootstrap resamples of the median."
+    )
+    confidence: float = Field(
+        default=0.90, gt=0.5, lt=1.0, description="Weekly drift: level of the intervals."
+    )
 
     @field_validator("data_dir")
     @classmethod

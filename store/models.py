@@ -13,6 +13,7 @@ from typing import Any
 from sqlalchemy import (
     JSON,
     BigInteger,
+    Boolean,
     Float,
     ForeignKey,
     Integer,
@@ -185,3 +186,117 @@ def _sample_columns() -> dict[str, Any]:
 
 
 Sample = type("Sample", (Base,), _sample_columns())
+
+
+class ReferenceModel(Base):
+    """A calibrated reference of one unit: model coefficients, hill chart, index constant.
+
+    Versioned per unit and never rewritten in its physics: a new unit configuration (a
+    refurbishment, new acceptance tests) makes a new version, and results computed against
+    an old version keep naming it. The index constant is the one field set after creation,
+    once, when the baseline period of the epoch has been computed (IEC 60041 index method).
+    """
+
+    __tablename__ = "reference_models"
+    __table_args__ = (UniqueConstraint("unit_id", "version"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    unit_id: Mapped[int] = mapped_column(ForeignKey("units.id"), index=True)
+    version: Mapped[int] = mapped_column(Integer)
+    unit_config_version: Mapped[int] = mapped_column(Integer)
+    effective_from: Mapped[datetime] = mapped_column(UtcDateTime)
+    runner_type: Mapped[str] = mapped_column(String(16))
+    coefficients: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    calibration: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    hill_chart: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    best_efficiency_point: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    flow_basis: Mapped[str] = mapped_column(String(24))  # flow_meter | winter_kennedy
+    baseline_start: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    baseline_end: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    index_constant: Mapped[float | None] = mapped_column(Float, nullable=True)
+    index_constant_detail: Mapped[dict[str, Any]] = mapped_column(JsonType, default=dict)
+    code_version: Mapped[str] = mapped_column(String(40))
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+
+
+class EfficiencyWindow(Base):
+    """One clock-aligned window of a unit: averages, steady verdict, efficiency, deviation.
+
+    Every window with samples is kept (steady or not) because the week's generated energy
+    counts all of them; efficiency and deviation are set only for steady windows.
+    Efficiencies are fractions; ``deviation`` = eta_index - eta_ref (0.01 = one point).
+    """
+
+    __tablename__ = "efficiency_windows"
+
+    unit_id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    start: Mapped[datetime] = mapped_column(UtcDateTime, primary_key=True)
+    duration_s: Mapped[float] = mapped_column(Float)
+    n_samples: Mapped[int] = mapped_column(Integer)
+    steady: Mapped[bool] = mapped_column(Boolean)
+    unsteady_reasons: Mapped[int] = mapped_column(Integer, default=0)
+    energy_j: Mapped[float] = mapped_column(Float)
+    generator_power: Mapped[float | None] = mapped_column(Float, nullable=True)
+    net_head: Mapped[float | None] = mapped_column(Float, nullable=True)
+    flow: Mapped[float | None] = mapped_column(Float, nullable=True)
+    opening: Mapped[float | None] = mapped_column(Float, nullable=True)
+    blade_angle: Mapped[float | None] = mapped_column(Float, nullable=True)
+    water_temperature: Mapped[float | None] = mapped_column(Float, nullable=True)
+    water_density: Mapped[float | None] = mapped_column(Float, nullable=True)
+    generator_efficiency: Mapped[float | None] = mapped_column(Float, nullable=True)
+    eta_index_raw: Mapped[float | None] = mapped_column(Float, nullable=True)
+    eta_index: Mapped[float | None] = mapped_column(Float, nullable=True)
+    eta_reference: Mapped[float | None] = mapped_column(Float, nullable=True)
+    deviation: Mapped[float | None] = mapped_column(Float, nullable=True)
+    relative_loss: Mapped[float | None] = mapped_column(Float, nullable=True)
+    reference_model_id: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    code_version: Mapped[str] = mapped_column(String(40))
+
+
+class WeeklyDrift(Base):
+    """A unit's ISO week (in the plant's time zone): drift level, trend, change, lost energy.
+
+    Fractions for deviations and losses (0.01 = one point), points per year for the trend,
+    MWh for energy, the configured currency for money.
+    """
+
+    __tablename__ = "weekly_drift"
+
+    unit_id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    week: Mapped[str] = mapped_column(String(8), primary_key=True)  # 'YYYY-Www'
+    week_start: Mapped[datetime] = mapped_column(UtcDateTime)
+    n_windows: Mapped[int] = mapped_column(Integer)
+    steady_hours: Mapped[float] = mapped_column(Float)
+    running_hours: Mapped[float] = mapped_column(Float)
+    generated_mwh: Mapped[float] = mapped_column(Float)
+    deviation_median: Mapped[float | None] = mapped_column(Float, nullable=True)
+    deviation_low: Mapped[float | None] = mapped_column(Float, nullable=True)
+    deviation_high: Mapped[float | None] = mapped_column(Float, nullable=True)
+    loss_median: Mapped[float | None] = mapped_column(Float, nullable=True)
+    loss_low: Mapped[float | None] = mapped_column(Float, nullable=True)
+    loss_high: Mapped[float | None] = mapped_column(Float, nullable=True)
+    trend_points_per_year: Mapped[float | None] = mapped_column(Float, nullable=True)
+    trend_low: Mapped[float | None] = mapped_column(Float, nullable=True)
+    trend_high: Mapped[float | None] = mapped_column(Float, nullable=True)
+    change_point_week: Mapped[str | None] = mapped_column(String(8), nullable=True)
+    change_point_size: Mapped[float | None] = mapped_column(Float, nullable=True)
+    lost_mwh: Mapped[float | None] = mapped_column(Float, nullable=True)
+    lost_mwh_low: Mapped[float | None] = mapped_column(Float, nullable=True)
+    lost_mwh_high: Mapped[float | None] = mapped_column(Float, nullable=True)
+    cumulative_lost_mwh: Mapped[float | None] = mapped_column(Float, nullable=True)
+    energy_price: Mapped[float] = mapped_column(Float)
+    currency: Mapped[str] = mapped_column(String(8))
+    reference_model_id: Mapped[int] = mapped_column(Integer)
+    code_version: Mapped[str] = mapped_column(String(40))
+    computed_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+
+
+class ComputedFile(Base):
+    """An ingested file whose samples ``hydrodrift compute`` has processed."""
+
+    __tablename__ = "computed_files"
+
+    ingested_file_id: Mapped[int] = mapped_column(ForeignKey("ingested_files.id"),
+                                                  primary_key=True)
+    computed_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+    code_version: Mapped[str] = mapped_column(String(40))

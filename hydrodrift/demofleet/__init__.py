@@ -19,10 +19,11 @@ from datetime import UTC, datetime, timedelta
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from hydrodrift.demofleet.dispatch import PlantSimulation, simulate_plant
-from hydrodrift.demofleet.efficiency import fit_hill
 from hydrodrift.demofleet.exports import plant_toml, write_exports
-from hydrodrift.demofleet.hydraulics import GRAVITY, RHO_WATER
+from hydrodrift.demofleet.physics import CAM_MISTUNE_DEG, unit_physics
 from hydrodrift.demofleet.scenario import (
     CONDITIONS,
     DEFAULT_START,
@@ -153,12 +154,19 @@ def _truth(seed: int, start: datetime, days: int, written: list[tuple[Path, Plan
     for sim in simulations:
         for spec in sim.plant.units:
             c = conditions.get((sim.design.code, spec.code))
-            hill = fit_hill(spec.reference_points)
+            physics = unit_physics(sim.design.code, spec.code)
+            bep = physics.chart.best_efficiency_point(spec.rated_head)
             op = sim.units[spec.code]
             entry: dict[str, Any] = {
                 "plant": sim.design.code, "unit": spec.code, "runner_type": spec.runner_type,
                 "condition": "healthy" if c is None else c.kind,
-                "hill_rms_residual": round(hill.rms_residual, 6),
+                "as_built_coefficients": {k: round(float(v), 9)
+                                          for k, v in physics.model.coefficients.items()},
+                "as_built_bep": {"head_m": bep.head, "power_w": round(bep.power, 1),
+                                 "flow_m3_s": round(bep.flow, 4),
+                                 "efficiency": round(bep.efficiency, 6)},
+                "mean_off_cam_effect_points": round(100 * float(
+                    np.mean(op.off_cam_effect[op.online])) if op.online.any() else 0.0, 4),
                 "hours_online": round(float(op.online.sum()) * SAMPLE_SECONDS / 3600, 1),
                 "starts": int(((~op.online[:-1]) & op.online[1:]).sum()),
                 "energy_mwh": round(float(op.generator_power.sum()) * SAMPLE_SECONDS
@@ -197,13 +205,18 @@ def _truth(seed: int, start: datetime, days: int, written: list[tuple[Path, Plan
                     "plant_file": p.relative_to(root).as_posix(), "layout": s.design.layout}
                    for (p, _), s in zip(written, simulations, strict=True)],
         "physics": {
-            "water_density_kg_m3": RHO_WATER,
-            "gravity_m_s2": GRAVITY,
+            "water_density": "IAPWS-IF97 at the water temperature and the mean pressure of the "
+                             "two reference sections (analytics.water)",
+            "gravity": "IEC 60041 formula at the plant's latitude and elevation "
+                       "(analytics.site)",
+            "cam_mistune_deg": {f"{p}/{u}": v for (p, u), v in CAM_MISTUNE_DEG.items()},
             "net_head": "gross head minus k_p Q^2, no velocity-head terms; gross head is "
                         "headwater minus tailwater (Francis, Kaplan) or minus the jet-circle "
                         "elevation (Pelton)",
-            "efficiency": "turbine efficiency = reference hill from the plant file's reference "
-                          "points (hydrodrift.demofleet.efficiency) minus the unit's degradation",
+            "efficiency": "turbine efficiency = the unit's as-built velocity-triangle model "
+                          "(analytics.runners, coefficients above) on its installed cam, plus "
+                          "the off-cam effect of the governor's blade-angle error (Kaplan), "
+                          "minus the unit's degradation",
             "energy_balance": "P_gen = rho g Q H eta_turbine eta_generator (noise-free)",
             "winter_kennedy": "dp = (Q / k)^(1/n) with k and n from the plant file",
             "stopped_units": "active power, speed and opening read exactly 0 while a unit is "

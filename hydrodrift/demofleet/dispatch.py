@@ -26,14 +26,19 @@ import pandas as pd
 from numpy.typing import NDArray
 from scipy.signal import lfilter
 
+from analytics.site import atmospheric_pressure, local_gravity
+from analytics.water import density
 from hydrodrift.demofleet.hydraulics import (
-    GRAVITY,
-    RHO_WATER,
     OperatingPoint,
-    cam_blade_angle,
-    gate_opening,
     operating_point,
     wk_differential_pressure,
+)
+from hydrodrift.demofleet.physics import (
+    CAM_FOLLOWING,
+    REFERENCE_G,
+    cam_angle,
+    reference_rho,
+    unit_physics,
 )
 from hydrodrift.demofleet.scenario import (
     CONDITIONS,
@@ -43,7 +48,7 @@ from hydrodrift.demofleet.scenario import (
     PlantDesign,
     UnitDesign,
 )
-from ingest.plant_file import KaplanGeometry, PlantFile, UnitSpec
+from ingest.plant_file import PlantFile, UnitSpec
 
 SAMPLES_PER_HOUR = 3600 // SAMPLE_SECONDS
 ZERO_CELSIUS_K = 273.15  # the Celsius scale's zero in kelvin (definition)
@@ -249,7 +254,7 @@ def _glimmerfels(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
     power_h = _dispatch(design, plant, cal, demand, gross_h, interleave=(0, 2, 1, 3))
     power = np.array([_hourly(p) for p in power_h])
     # Tailwater in the outlet basin rises with plant flow (invented rating: +1 m at 55 m3/s).
-    flow_est = power.sum(axis=0) / (RHO_WATER * GRAVITY * 500.0 * 0.9)
+    flow_est = power.sum(axis=0) / (reference_rho() * REFERENCE_G * 500.0 * 0.9)
     tailwater = 1478.0 + 0.09 * flow_est**0.6
     water_c = (5.5 - 2.5 * np.cos(2 * np.pi * (doy - 45.0) / 365.25)
                + ar1(rng_for(seed, "GLF", "water"), n, 0.995, 0.1))
@@ -283,7 +288,8 @@ def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
     gross = headwater - tailwater
     available_flow = np.maximum(river - 15.0, 0.0)  # 15 m3/s stay in the fish pass
     pondage = 1.0 + 0.07 * np.sin(2 * np.pi * (h[sl] - 10.0) / 24.0)
-    demand = (RHO_WATER * GRAVITY * available_flow[sl] * gross[sl] * 0.90 * 0.975 * pondage)
+    demand = (reference_rho() * REFERENCE_G * available_flow[sl] * gross[sl] * 0.90 * 0.975
+              * pondage)
     gross_h = {s.code: gross[sl] for s in plant.units}
     power_h = _dispatch(design, plant, cal, demand, gross_h, interleave=(0, 1, 2))
     power = np.array([_hourly(p) for p in power_h])
@@ -294,28 +300,27 @@ def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
 
 
 def _unit_signals(design: UnitDesign, spec: UnitSpec, op: OperatingPoint,
-                  tailwater: NDArray, water_k: NDArray) -> dict[str, NDArray]:
+                  tailwater: NDArray, water_k: NDArray, plant_code: str,
+                  blade_error: NDArray | None) -> dict[str, NDArray]:
     """Noise-free signals of one unit, by canonical signal name (SI)."""
     on = op.online
     load = op.generator_power / spec.rated_power
     out: dict[str, NDArray] = {"active_power": op.generator_power}
     out["wk_differential_pressure"] = wk_differential_pressure(spec, op.flow)
-    opening = gate_opening(op.flow, op.net_head, full_open_flow=design.full_open_flow_ratio
-                           * (spec.rated_flow or 0.0), rated_head=spec.rated_head,
-                           exponent=design.opening_exponent)
-    out["gate_opening"] = np.where(on, opening, 0.0)
-    if isinstance(spec.geometry, KaplanGeometry):
+    out["gate_opening"] = np.where(on, op.opening, 0.0)
+    if blade_error is not None:
         start_position = np.deg2rad(-8.0)  # blades parked flat at standstill (invented)
-        out["blade_angle"] = np.where(on, cam_blade_angle(spec.geometry, opening, op.net_head),
-                                      start_position)
+        physics = unit_physics(plant_code, spec.code)
+        out["blade_angle"] = np.where(on, cam_angle(physics, op.opening, op.net_head)
+                                      + blade_error, start_position)
     out["rotational_speed"] = np.where(on, spec.rated_speed, 0.0)
     if design.outlet_area_m2 > 0:
         velocity = op.flow / design.outlet_area_m2
         # Cone pressure: hydrostatic below tailwater less the recovered velocity head
         # (recovery 0.7, invented).
         submergence = tailwater - spec.runner_reference_elevation
-        out["draft_tube_pressure"] = (RHO_WATER * GRAVITY * submergence
-                                      - 0.7 * RHO_WATER * velocity**2 / 2.0)
+        out["draft_tube_pressure"] = (op.rho * op.g * submergence
+                                      - 0.7 * op.rho * velocity**2 / 2.0)
     rough = np.exp(-(((load - design.rough_zone_load) / 0.12) ** 2))
     out["shaft_vibration"] = np.where(
         on, design.shaft_vibration_m * (1 + 0.1 * load) + design.rough_zone_vibration_m * rough,
@@ -398,16 +403,29 @@ def simulate_plant(design: PlantDesign, plant: PlantFile, *, start: datetime, da
         headwater, tailwater, water_k, river, power = _lantern(design, plant, cal, seed)
     sim = PlantSimulation(design=design, plant=plant, cal=cal, headwater=headwater,
                           tailwater=tailwater, water_temperature=water_k, river_flow=river)
+    g = float(local_gravity(design.latitude, design.elevation_m))
     by_unit_signal: dict[tuple[str, str], NDArray] = {
         ("*", "headwater_level"): headwater, ("*", "tailwater_level"): tailwater}
     for i, (unit_design, spec) in enumerate(zip(design.units, plant.units, strict=True)):
         low = (np.maximum(spec.runner_reference_elevation, tailwater)
                if spec.runner_type == "pelton" else tailwater)
-        op = operating_point(spec, power[i], headwater - low,
-                             degradation(design.code, spec.code, cal.times))
+        physics = unit_physics(design.code, spec.code)
+        # water density at the mean pressure of the inlet and outlet sections (IAPWS-IF97)
+        pressure = atmospheric_pressure(design.elevation_m) + 0.5 * physics.rho * g * (
+            headwater - low)
+        rho = density(water_k, pressure)
+        blade_error = None
+        if spec.runner_type == "kaplan":
+            sigma_deg, phi = CAM_FOLLOWING
+            blade_error = np.deg2rad(ar1(rng_for(seed, design.code, spec.code, "cam"),
+                                         len(cal.times), phi, sigma_deg))
+        op = operating_point(spec, physics, power[i], headwater - low,
+                             degradation(design.code, spec.code, cal.times), rho=rho, g=g,
+                             blade_error=blade_error)
         sim.units[spec.code] = op
         offset = rng_for(seed, design.code, spec.code, "water-sensor").normal(0.0, 0.05)
-        signals = _unit_signals(unit_design, spec, op, tailwater, water_k + offset)
+        signals = _unit_signals(unit_design, spec, op, tailwater, water_k + offset,
+                                design.code, blade_error)
         for name, values in signals.items():
             by_unit_signal[(spec.code, name)] = values
     for tag, mapping in plant.tags.items():

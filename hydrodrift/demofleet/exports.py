@@ -21,17 +21,16 @@ import numpy as np
 from numpy.typing import NDArray
 
 from hydrodrift.demofleet.dispatch import PlantSimulation
-from hydrodrift.demofleet.efficiency import HillModel, hill_efficiency
-from hydrodrift.demofleet.hydraulics import GRAVITY, RHO_WATER, cam_blade_angle, gate_opening
+from hydrodrift.demofleet.physics import cam_angle, unit_physics
 from hydrodrift.demofleet.scenario import (
     BAD_TIMESTAMP_SECOND_RAW,
     FAULTS,
     FLEET_OWNER,
+    PLANTS,
     FaultSpec,
     PlantDesign,
     UnitDesign,
 )
-from ingest.plant_file import KaplanGeometry
 from ingest.units import linear_to_si
 
 _STR = np.dtypes.StringDType()
@@ -88,12 +87,9 @@ def _toml(value: Any) -> str:
     raise TypeError(f"cannot write {type(value).__name__} as TOML")
 
 
-def design_hill(unit: UnitDesign) -> HillModel:
-    """The design hill of a unit (BEP at rated head)."""
-    rated_turbine = unit.rated_power_w / design_generator_efficiency(unit, 1.0)
-    h = unit.hill
-    return HillModel(bep_power=h.bep_load * rated_turbine, bep_head=unit.rated_head_m,
-                     eta_max=h.eta_max, a_part=h.a_part, a_over=h.a_over, b_head=h.b_head)
+def _physics(unit: UnitDesign):
+    plant = next(p for p in PLANTS if unit in p.units)
+    return unit_physics(plant.code, unit.code)
 
 
 def design_generator_efficiency(unit: UnitDesign, load: float) -> float:
@@ -103,39 +99,52 @@ def design_generator_efficiency(unit: UnitDesign, load: float) -> float:
 
 
 def design_rated_flow(unit: UnitDesign) -> float:
-    """Flow at rated power and rated head [m3/s]."""
+    """Flow at rated power and rated head of the as-built unit [m3/s]."""
     rated_turbine = unit.rated_power_w / design_generator_efficiency(unit, 1.0)
-    eta = float(hill_efficiency(rated_turbine, unit.rated_head_m, design_hill(unit)))
-    return rated_turbine / (RHO_WATER * GRAVITY * unit.rated_head_m * eta)
+    return float(_physics(unit).chart.flow_at_power(rated_turbine, unit.rated_head_m))
 
 
 def design_reference_points(unit: UnitDesign) -> list[dict[str, float]]:
-    """Acceptance-test style points (SI) on the design hill: a load sweep at rated head,
-    plus the BEP and one more load at a low and at a high head."""
-    hill = design_hill(unit)
+    """Acceptance-test style points (SI) of the as-built unit: a load sweep at rated head,
+    plus the BEP and one more load at a low and at a high head.
+
+    Francis and Kaplan points are solved exactly at the opening that gives the load (and,
+    for a Kaplan, on its installed cam); Pelton points come from the hill chart (best jet
+    count at each power) and carry no opening, as a jet count is not part of a point.
+    """
+    physics = _physics(unit)
+    chart, model = physics.chart, physics.model
     rated_turbine = unit.rated_power_w / design_generator_efficiency(unit, 1.0)
-    q_rated = design_rated_flow(unit)
-    sweep = sorted({*unit.reference_loads, unit.hill.bep_load})
+    bep = chart.best_efficiency_point(unit.rated_head_m)
+    bep_load = bep.power / rated_turbine
+    sweep = sorted({*unit.reference_loads, round(bep_load, 3)})
     cases = [(unit.rated_head_m, load) for load in sweep]
     low, high = unit.reference_heads_m
     for head in (low, high):
-        bep_here = unit.hill.bep_load * (head / unit.rated_head_m) ** 1.5
+        bep_here = bep_load * (head / unit.rated_head_m) ** 1.5
         # the BEP at that head, and part load (low head) or rated power (high head)
         cases += [(head, bep_here), (head, 0.65 * bep_here if head == low else 1.0)]
-    geometry = (KaplanGeometry.model_validate(unit.geometry)
-                if unit.runner_type == "kaplan" else None)
     points = []
     for head, load in cases:
-        power = load * rated_turbine
-        eta = float(hill_efficiency(power, head, hill))
-        flow = power / (RHO_WATER * GRAVITY * head * eta)
-        opening = float(gate_opening(flow, head, full_open_flow=unit.full_open_flow_ratio
-                                     * q_rated, rated_head=unit.rated_head_m,
-                                     exponent=unit.opening_exponent))
-        point = {"head": head, "power": power, "flow": flow, "efficiency": eta,
-                 "opening": opening}
-        if geometry is not None:
-            point["blade_angle"] = float(cam_blade_angle(geometry, opening, head))
+        h = np.array([head])
+        p_max = float(np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
+                      * head**1.5)
+        target = np.array([min(load * rated_turbine, 0.98 * p_max)])
+        if unit.runner_type == "pelton":
+            point = {"head": head, "power": float(target[0]),
+                     "flow": float(chart.flow_at_power(target, h)[0]),
+                     "efficiency": float(chart.efficiency_at_power(target, h)[0])}
+        else:
+            opening = chart.opening_at_power(target, h)
+            sol = model.solve(h, physics.speed, opening, rho=physics.rho, g=physics.g)
+            point = {"head": head, "power": float(sol.shaft_power[0]),
+                     "flow": float(sol.flow[0]), "efficiency": float(sol.efficiency[0]),
+                     "opening": float(opening[0])}
+            if unit.runner_type == "kaplan":
+                point["blade_angle"] = float(cam_angle(physics, opening, h)[0])
+        if not all(np.isfinite(v) for v in point.values()):
+            raise RuntimeError(f"demo unit {unit.code}: reference point at {head} m, load "
+                               f"{load:.2f} is outside its hill chart")
         points.append(point)
     return points
 
@@ -201,7 +210,8 @@ def _unit_toml(design: PlantDesign, unit: UnitDesign, effective_from: datetime) 
         f"rated_head = {_toml(quantity(unit.rated_head_m, lu, 'm', 3))}",
         f'rated_speed = "{unit.rated_speed_rpm:g} rpm"  # {unit.grid_hz:g} Hz, '
         f"{unit.pole_pairs} pole pairs",
-        f"rated_flow = {_toml(quantity(q_rated, fu, 'm**3/s', 3 if fu != 'cfs' else 1))}",
+        f"# rated flow about {quantity(q_rated, fu, 'm**3/s', 3 if fu != 'cfs' else 1)} "
+        "(not given: the reference model derives its design point from the ratings)",
         f"runner_diameter = {_toml(quantity(unit.runner_diameter_m, lu, 'm', 3))}",
         f"runner_reference_elevation = "
         f"{_toml(quantity(unit.runner_reference_elevation_m, lu, 'm', 3))}",
@@ -222,20 +232,21 @@ def _unit_toml(design: PlantDesign, unit: UnitDesign, effective_from: datetime) 
             "power": f"{p['power'] / 1e6:.4f} MW",
             "flow": quantity(p["flow"], fu, "m**3/s", 3 if fu != "cfs" else 1),
             "efficiency": round(p["efficiency"], 4),
-            "opening": round(p["opening"], 4),
         }
+        if "opening" in p:
+            entry["opening"] = round(p["opening"], 4)
         if "blade_angle" in p:
             entry["blade_angle"] = f"{np.rad2deg(p['blade_angle']):.2f} deg"
         entry["source"] = "acceptance test (fictional)"
         lines.append(f"  {_toml(entry)},")
     lines += ["]", "", "[units.geometry]"]
     for key, value in unit.geometry.items():
-        if key == "cam":
-            lines.append("cam = [  # (opening fraction, net head [m], blade angle [deg])")
-            lines += [f"  {_toml(row)}," for row in value]  # type: ignore[union-attr]
-            lines.append("]")
-        else:
-            lines.append(f"{key} = {_toml(value)}")
+        lines.append(f"{key} = {_toml(value)}")
+    if unit.runner_type == "kaplan":
+        lines.append("cam = [  # installed cam: (opening fraction, net head [m], blade angle "
+                     "[deg])")
+        lines += [f"  {_toml(list(row))}," for row in _physics(unit).cam_rows]
+        lines.append("]")
     return "\n".join(lines)
 
 

@@ -1,17 +1,20 @@
 """The demo generator's hydraulics: from dispatched power and gross head to flow and signals.
 
-Chain for one unit (vectorised over time)::
+Chain for one unit (vectorised over time), with the unit's as-built reference model
+(:mod:`hydrodrift.demofleet.physics`) solved once into a hill chart::
 
-    P_turbine = P_gen / eta_gen(P_gen)
-    H = H_gross - k_p Q^2                      (fixed-point iteration, to 1e-9 m)
-    eta = eta_ref(P_turbine, H) - degradation(t)
-    Q = P_turbine / (rho g H eta)              (so P_gen = rho g Q H eta eta_gen exactly)
-    dp_WK = (Q / k)^(1/n)                      (Winter-Kennedy, IEC 60041 index method)
-    opening = (Q / Q_full(H))^(1/gamma),  Q_full(H) = Q_full,rated sqrt(H / H_rated)
+    P_turbine = P_gen / eta_gen(P_gen)          (at most the chart's maximum at that head)
+    H = H_gross - k_p Q^2                        (fixed-point iteration, to 1e-9 m)
+    eta = eta_ref(P_turbine, H) + off-cam effect - degradation(t)
+    Q = P_turbine / (rho g H eta)               (so P_gen = rho g Q H eta eta_gen exactly)
+    dp_WK = (Q / k)^(1/n)                       (Winter-Kennedy, IEC 60041 index method)
+    opening = the chart's opening at (P_turbine, H); Pelton jets: the chart's best count
 
-Net head here is gross head minus the penstock loss only (no velocity-head terms); for a
-Pelton the low-pressure reference is the jet-circle plane (IEC 60041 for Pelton turbines),
-so its gross head is headwater minus that elevation.
+``rho`` is IAPWS-IF97 water density at the water temperature (analytics.water) and ``g``
+local gravity at the plant (IEC 60041 formula, analytics.site). Net head is gross head
+minus the penstock loss only (no velocity-head terms); for a Pelton the low-pressure
+reference is the jet-circle plane (IEC 60041 for Pelton turbines), so its gross head is
+headwater minus that elevation.
 """
 
 from __future__ import annotations
@@ -20,16 +23,13 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.interpolate import RegularGridInterpolator
 
-from hydrodrift.demofleet.efficiency import generator_efficiency, turbine_efficiency
-from ingest.plant_file import KaplanGeometry, UnitSpec
+from analytics.index_test import generator_efficiency as curve_efficiency
+from hydrodrift.demofleet.physics import DemoUnitPhysics
+from ingest.plant_file import UnitSpec
 
-#: Water density [kg/m3] and gravity [m/s2] used by the generator, in ONE place.
-#: The analytics water module (density from temperature and pressure, gravity from latitude
-#: and altitude per IEC 60041) does not exist yet; when it does it replaces these two.
-RHO_WATER = 1000.0
-GRAVITY = 9.81
+#: Largest share of the chart's maximum power at a head the governor will load a unit to.
+MAX_LOAD_OF_CHART = 0.995
 
 
 @dataclass
@@ -44,25 +44,44 @@ class OperatingPoint:
     generator_power: NDArray  # [W]
     turbine_power: NDArray  # [W]
     generator_efficiency: NDArray  # fraction
-    reference_efficiency: NDArray  # healthy turbine efficiency, fraction
+    reference_efficiency: NDArray  # healthy turbine efficiency on cam, fraction
     degradation: NDArray  # efficiency points lost, as a fraction (0.015 = 1.5 points)
-    turbine_efficiency: NDArray  # actual = reference - degradation
+    turbine_efficiency: NDArray  # actual = reference + off-cam effect - degradation
     flow: NDArray  # [m3/s]
     gross_head: NDArray  # [m]
     net_head: NDArray  # [m]
+    opening: NDArray  # fraction (0 offline)
+    jets: NDArray  # active jets (Pelton), 0 otherwise
+    rho: NDArray  # [kg/m3]
+    g: float  # [m/s2]
+    off_cam_effect: NDArray  # efficiency change from the blade-angle error (Kaplan), fraction
 
 
-def operating_point(unit: UnitSpec, generator_power: ArrayLike, gross_head: ArrayLike,
-                    degradation: ArrayLike, *, tolerance: float = 1e-9,
-                    max_iterations: int = 50) -> OperatingPoint:
+def generator_efficiency(unit: UnitSpec, power_w: ArrayLike) -> NDArray:
+    """Generator efficiency of ``unit`` at an active power [W] (its plant-file curve)."""
+    curve = unit.generator_efficiency
+    power = np.asarray(power_w, dtype=float)
+    if isinstance(curve, float):
+        return np.full_like(power, curve)
+    return np.asarray(curve_efficiency(power, [p.power for p in curve],
+                                       [p.efficiency for p in curve]), dtype=float)
+
+
+def operating_point(unit: UnitSpec, physics: DemoUnitPhysics, generator_power: ArrayLike,
+                    gross_head: ArrayLike, degradation: ArrayLike, *, rho: ArrayLike,
+                    g: float, blade_error: ArrayLike | None = None,
+                    tolerance: float = 1e-9, max_iterations: int = 50) -> OperatingPoint:
     """Solve flow and net head of ``unit`` for a dispatched power at a gross head.
 
     Parameters
     ----------
-    unit : the unit (penstock loss coefficient, efficiency curves)
+    unit : the unit (penstock loss coefficient, generator curve)
+    physics : its as-built model and hill chart
     generator_power : array [W] generator active power, 0 when stopped
     gross_head : array [m] headwater minus the low-pressure reference level
-    degradation : array, efficiency lost (fraction), subtracted from the reference hill
+    degradation : array, efficiency lost (fraction), subtracted from the reference
+    rho : array [kg/m3] water density; g : [m/s2] local gravity
+    blade_error : Kaplan only, [rad] blade angle minus cam angle (None: on cam)
     tolerance : float [m] convergence of the net head iteration
 
     Returns
@@ -72,26 +91,49 @@ def operating_point(unit: UnitSpec, generator_power: ArrayLike, gross_head: Arra
     p_gen = np.asarray(generator_power, dtype=float)
     h_gross = np.broadcast_to(np.asarray(gross_head, dtype=float), p_gen.shape)
     loss = np.broadcast_to(np.asarray(degradation, dtype=float), p_gen.shape)
+    density = np.broadcast_to(np.asarray(rho, dtype=float), p_gen.shape)
     online = p_gen > 0.0
-    eta_gen = np.where(online, generator_efficiency(unit, p_gen), np.nan)
-    p_turb = np.where(online, p_gen / np.where(online, eta_gen, 1.0), 0.0)
+    chart = physics.chart
     k_p = unit.penstock_loss_coefficient
     head = np.array(h_gross, dtype=float)
     for _ in range(max_iterations):
-        eta_ref = turbine_efficiency(unit, p_turb, head)
+        eta_gen = np.where(online, generator_efficiency(unit, p_gen), np.nan)
+        p_turb = np.where(online, p_gen / np.where(online, eta_gen, 1.0), 0.0)
+        reduced = np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
+        limit = MAX_LOAD_OF_CHART * reduced * head**1.5
+        p_turb = np.minimum(p_turb, limit)
+        p_gen = np.where(online, p_turb * eta_gen, 0.0)
+        eta_ref = chart.efficiency_at_power(p_turb, head)
         eta = eta_ref - loss
-        flow = np.where(online, p_turb / (RHO_WATER * GRAVITY * head * eta), 0.0)
+        flow = np.where(online, p_turb / (density * g * head * eta), 0.0)
         new_head = h_gross - k_p * flow**2
         if np.max(np.abs(new_head - head), initial=0.0) < tolerance:
             break
         head = new_head
     else:  # pragma: no cover - the iteration contracts by ~2 k_p Q^2 / H << 1
         raise RuntimeError(f"net head of unit {unit.code} did not converge")
+    if np.isnan(eta_ref[online]).any():
+        raise RuntimeError(f"unit {unit.code}: operating points outside its hill chart")
+    opening = np.where(online, chart.opening_at_power(p_turb, head), 0.0)
+    jets = np.where(online, chart.mode_at_power(p_turb, head), 0)
+    effect = np.zeros(p_gen.shape)
+    if blade_error is not None and online.any():
+        error = np.broadcast_to(np.asarray(blade_error, dtype=float), p_gen.shape)
+        on_h, on_y = head[online], opening[online]
+        cam = physics.model.geometry.cam_angle(on_y, on_h)  # type: ignore[attr-defined]
+        on_cam = physics.model.solve(on_h, physics.speed, on_y, blade_angle=cam,
+                                     rho=physics.rho, g=physics.g).efficiency
+        off_cam = physics.model.solve(on_h, physics.speed, on_y, blade_angle=cam
+                                      + error[online], rho=physics.rho, g=physics.g).efficiency
+        effect[online] = np.nan_to_num(off_cam - on_cam)
+        eta = eta + effect
+        flow = np.where(online, p_turb / (density * g * head * eta), 0.0)
     return OperatingPoint(
         online=online, generator_power=p_gen, turbine_power=p_turb, generator_efficiency=eta_gen,
         reference_efficiency=np.where(online, eta_ref, np.nan), degradation=np.array(loss),
         turbine_efficiency=np.where(online, eta, np.nan), flow=flow,
-        gross_head=np.array(h_gross), net_head=head,
+        gross_head=np.array(h_gross), net_head=head, opening=opening, jets=jets,
+        rho=np.array(density), g=g, off_cam_effect=effect,
     )
 
 
@@ -111,43 +153,3 @@ def wk_differential_pressure(unit: UnitSpec, flow: ArrayLike) -> NDArray:
         raise ValueError(f"unit {unit.code} has no winter_kennedy_coefficient")
     q = np.asarray(flow, dtype=float)
     return (q / unit.winter_kennedy_coefficient) ** (1.0 / unit.winter_kennedy_exponent)
-
-
-def gate_opening(flow: ArrayLike, net_head: ArrayLike, *, full_open_flow: float,
-                 rated_head: float, exponent: float) -> NDArray:
-    """Guide-vane opening (or needle stroke) as a fraction 0..1, monotone in flow.
-
-    Parameters
-    ----------
-    flow : array [m3/s]
-    net_head : array [m]
-    full_open_flow : float [m3/s] flow at full opening at ``rated_head``
-    rated_head : float [m]
-    exponent : float, gamma in ``Q / Q_full(H) = opening^gamma`` (invented law)
-    """
-    q_full = full_open_flow * np.sqrt(np.asarray(net_head, dtype=float) / rated_head)
-    ratio = np.clip(np.asarray(flow, dtype=float) / q_full, 0.0, 1.0)
-    return ratio ** (1.0 / exponent)
-
-
-def cam_blade_angle(geometry: KaplanGeometry, opening: ArrayLike, net_head: ArrayLike) -> NDArray:
-    """Blade angle from the installed cam table, bilinear, clamped to the table [rad].
-
-    Parameters
-    ----------
-    geometry : Kaplan geometry whose ``cam`` holds a full grid of
-        (opening fraction, net head [m], blade angle [deg]) triples
-    opening : array, fraction 0..1
-    net_head : array [m]
-    """
-    table = np.array(geometry.cam, dtype=float)
-    openings = np.unique(table[:, 0])
-    heads = np.unique(table[:, 1])
-    grid = np.full((openings.size, heads.size), np.nan)
-    grid[np.searchsorted(openings, table[:, 0]), np.searchsorted(heads, table[:, 1])] = table[:, 2]
-    if np.isnan(grid).any():
-        raise ValueError("the cam table is not a full grid of openings and heads")
-    interpolate = RegularGridInterpolator((openings, heads), grid)
-    y = np.clip(np.asarray(opening, dtype=float), openings[0], openings[-1])
-    h = np.clip(np.asarray(net_head, dtype=float), heads[0], heads[-1])
-    return np.deg2rad(interpolate(np.column_stack([y.ravel(), h.ravel()])).reshape(y.shape))

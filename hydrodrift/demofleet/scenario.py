@@ -39,25 +39,6 @@ RunnerType = Literal["francis", "kaplan", "pelton"]
 
 
 @dataclass(frozen=True)
-class HillShape:
-    """Design shape of a unit's efficiency hill (see :func:`efficiency.hill_efficiency`).
-
-    Attributes
-    ----------
-    eta_max : turbine efficiency at the best-efficiency point (BEP) at rated head
-    bep_load : turbine power at the BEP over turbine power at the rated point (rated head)
-    a_part, a_over : efficiency loss per (load ratio - 1)^2 below / above the BEP
-    b_head : efficiency loss per (head ratio - 1)^2
-    """
-
-    eta_max: float
-    bep_load: float
-    a_part: float
-    a_over: float
-    b_head: float
-
-
-@dataclass(frozen=True)
 class UnitDesign:
     """One fictional turbine-generator unit, in SI units.
 
@@ -78,10 +59,7 @@ class UnitDesign:
     penstock_loss_coefficient: float  # [s2/m5]
     wk_dp_at_rated_flow_pa: float  # sets the Winter-Kennedy k
     generator_curve: tuple[tuple[float, float], ...]  # (P / P_rated, eta_gen)
-    hill: HillShape
     min_load: float  # lowest dispatched load, fraction of rated power
-    full_open_flow_ratio: float  # Q at full opening / rated Q, at rated head
-    opening_exponent: float  # Q/Q_full = opening**exponent
     outlet_area_m2: float  # draft-tube cone area for its pressure (0: no draft tube)
     geometry: dict[str, object]
     reference_heads_m: tuple[float, float]  # low and high head of the extra test points
@@ -179,7 +157,7 @@ _PELTON_GEOMETRY: dict[str, object] = {
     "kind": "pelton",
     "pitch_diameter": "1.450 m",
     "jet_count": 6,
-    "nozzle_diameter": "0.180 m",  # nozzle outlet at full stroke, ~1.25 x jet diameter
+    "nozzle_diameter": "0.150 m",  # jet diameter at full stroke, ~6 % above the rated jet
     "bucket_outlet_angle": "165 deg",  # 180 deg = full U-turn; 160-170 common (from memory)
     "bucket_count": 20,
 }
@@ -197,10 +175,7 @@ def _francis(code: str, name: str, *, flow_meter: bool) -> UnitDesign:
         # 80 MW air-cooled generator: 98.3 % at rating, falling at part load (textbook range
         # 0.96-0.985 for large machines)
         generator_curve=((0.25, 0.962), (0.5, 0.976), (0.75, 0.981), (1.0, 0.983), (1.1, 0.982)),
-        # eta_max 0.938 for a large modern Francis (textbook 0.93-0.95), BEP at 88 % of rated
-        hill=HillShape(eta_max=0.938, bep_load=0.88, a_part=0.32, a_over=0.55, b_head=0.6),
         min_load=0.40,  # rough zone below ~40 % load is avoided (common practice)
-        full_open_flow_ratio=1.0 / 0.86, opening_exponent=1.1,
         outlet_area_m2=1.70,
         geometry=_FRANCIS_GEOMETRY,
         reference_heads_m=(478.0, 522.0),
@@ -221,10 +196,7 @@ def _pelton(code: str, name: str) -> UnitDesign:
         penstock_loss_coefficient=0.17,  # 0.17 * 9.25^2 = 14.5 m, 2.9 % at full flow
         wk_dp_at_rated_flow_pa=90e3,  # bend taps in the distributor used as the flow index
         generator_curve=((0.25, 0.958), (0.5, 0.973), (0.75, 0.979), (1.0, 0.981), (1.1, 0.980)),
-        # eta_max 0.915 and a flat curve thanks to jet switching (textbook 0.90-0.92)
-        hill=HillShape(eta_max=0.915, bep_load=0.70, a_part=0.06, a_over=0.08, b_head=0.3),
         min_load=0.12,
-        full_open_flow_ratio=1.0 / 0.88, opening_exponent=1.0,
         outlet_area_m2=0.0,  # no draft tube
         geometry=_PELTON_GEOMETRY,
         reference_heads_m=(478.0, 522.0),
@@ -304,21 +276,8 @@ _KAPLAN_GEOMETRY: dict[str, object] = {
     "guide_vane_radius": "13.12 ft",  # 4.00 m
 }
 
-#: Installed cam, design law (deg): blade angle against opening and net head (invented).
-CAM_OPENINGS: tuple[float, ...] = (0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0)
-CAM_HEADS_M: tuple[float, ...] = (14.0, 16.0, 18.0, 20.0, 22.0)
-
-
-def cam_design_angle_deg(opening: float, head_m: float) -> float:
-    """The invented cam law: blades open with the gates, a little flatter at high head."""
-    x = max(opening - 0.15, 0.0) / 0.85
-    return round(-8.0 + 34.0 * x**0.9 - 0.6 * (head_m - 18.0), 2)
-
-
 def _kaplan(code: str, name: str) -> UnitDesign:
-    geometry = dict(_KAPLAN_GEOMETRY)
-    geometry["cam"] = [[o, h, cam_design_angle_deg(o, h)] for h in CAM_HEADS_M
-                       for o in CAM_OPENINGS]
+    geometry = dict(_KAPLAN_GEOMETRY)  # the installed cam comes from demofleet.physics
     return UnitDesign(
         code=code, name=name, runner_type="kaplan",
         rated_power_w=30e6, rated_head_m=18.0, pole_pairs=32, grid_hz=60.0,
@@ -327,10 +286,7 @@ def _kaplan(code: str, name: str) -> UnitDesign:
         penstock_loss_coefficient=1.1e-5,  # intake + trash rack: 1.1e-5 * 190^2 = 0.40 m, 2.2 %
         wk_dp_at_rated_flow_pa=30e3,  # semi-spiral case taps (invented)
         generator_curve=((0.25, 0.955), (0.5, 0.971), (0.75, 0.977), (1.0, 0.979), (1.1, 0.978)),
-        # eta_max 0.935, flat thanks to double regulation (textbook 0.92-0.94)
-        hill=HillShape(eta_max=0.935, bep_load=0.80, a_part=0.12, a_over=0.35, b_head=0.35),
         min_load=0.20,
-        full_open_flow_ratio=1.0 / 0.86, opening_exponent=1.1,
         outlet_area_m2=24.3,  # pi/4 (D^2 - d_hub^2)
         geometry=geometry,
         reference_heads_m=(15.0, 20.5),
