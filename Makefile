@@ -30,6 +30,7 @@ lint: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) bench/ingest.py
+	$(PY) bench/analytics.py
 
 clean:
 	rm -rf $(VENV) data .pytest_cache .ruff_cache .hypothesis

@@ -2,36 +2,56 @@
 
 Evaluating the reference for millions of samples must not mean a root-find per sample. The
 reference model (:mod:`analytics.runners`) is solved once per unit and reference version on
-a grid of net heads and regulating-organ positions; the result is resampled, per head, onto
-a common grid of *load* ``x = P / P_max(H)`` (and of flow ``Q / Q_max(H)``), which makes a
-regular 2-D table in ``(H, x)``. :meth:`HillChart.efficiency_at_power` then interpolates
-bilinearly with ``np.searchsorted``, fully vectorised.
+a grid of net heads and regulating-organ positions. For each operating mode the result is
+resampled, per head, onto a grid of *load* ``x = P / P_max,m(H)`` (and of flow
+``Q / Q_max,m(H)``), relative to that mode's own maximum, which makes one regular 2-D table
+in ``(H, x)`` per mode. Lookups interpolate bilinearly (Press et al., *Numerical Recipes*,
+3rd ed., 2007, sec. 3.6, bilinear interpolation on a rectangular grid) with
+``np.searchsorted``, vectorised over samples and modes at once.
 
-Where a runner has several operating modes for the same power (a Pelton's number of active
-jets) the chart holds the upper envelope over the modes: the operator runs the jet count
-that gives the best efficiency, so that is the reference (common practice of jet-switching
-schedules).
+Operating modes are a Pelton's numbers of active jets (Francis and Kaplan runners have one
+mode, numbered 0). For the same power several jet counts may do; the operator runs the one
+with the best efficiency (common practice of jet-switching schedules), so each lookup takes,
+per sample, the mode with the highest interpolated efficiency among the modes that can
+deliver the power, and returns that mode's opening and flow. Why one table per mode: with
+the part-stroke nozzle loss (:mod:`analytics.runners.pelton`) the best efficiency drops
+suddenly at every jet switch (``k`` jets at full stroke, then ``k + 1`` at a stroke near
+``k / (k + 1)``); one table of the maximum over modes would interpolate across that jump,
+while each mode's own curve is smooth over its own range.
 
-``P_max(H)`` moves with ``H^1.5`` for a fixed opening by the affinity laws (IEC 60193 unit
-quantities: ``P11 = P / (D^2 H^1.5)``); it is interpolated as ``P_max / H^1.5`` so that the
-interpolation between grid heads stays close to exact.
+``P_max,m(H)`` moves with ``H^1.5`` for a fixed opening by the affinity laws (IEC 60193 unit
+quantities: ``P11 = P / (D^2 H^1.5)``); it is interpolated as ``P_max,m / H^1.5`` (and
+``Q_max,m`` as ``Q_max,m / H^0.5``) so that the interpolation between grid heads stays close
+to exact. It is still an interpolation: between grid heads a power within its error below a
+mode's full power (a few 1e-5 of it for a Pelton on a 10 m head step) reads as beyond that
+mode, and the next mode is used there; the band shrinks with the head step squared.
+
+The chart is a reference for efficiency-drift monitoring. The jet count it reports is the
+model's best, not a switching schedule: the service advises; the unit's own schedule,
+operating limits, local codes and licensed practice prevail.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from analytics.runners.base import G_DEFAULT, RHO_DEFAULT, RunnerModel
 
-#: Loads (fraction of the head's maximum power or flow) of the resampled chart.
+#: Loads (fraction of the mode's maximum power or flow at the head) of the resampled chart.
 DEFAULT_LOADS = np.linspace(0.04, 1.0, 49)
 #: Regulating-organ positions the model is solved at (fraction).
 DEFAULT_OPENINGS = np.linspace(0.02, 1.0, 50)
+
+#: Samples per block in a lookup (see :meth:`HillChart._lookup`).
+_BLOCK = 1 << 14
+# Per-mode arrays stored by to_dict, in this order.
+_STORED = ("max_power_per_mode", "max_flow_per_mode", "eta_by_power_per_mode",
+           "eta_by_flow_per_mode", "opening_by_power_per_mode", "flow_by_power_per_mode")
 
 
 @dataclass(frozen=True)
@@ -45,152 +65,247 @@ class BestEfficiencyPoint:
     opening: float
 
 
+class _Cells(NamedTuple):
+    """Where each sample falls in each mode's table (modes on axis 0, samples on axis 1)."""
+
+    i: NDArray  # (n,) lower grid row (head)
+    t: NDArray  # (n,) weight toward row i + 1; NaN outside the head range
+    j: NDArray  # (nm, n) lower grid column (load)
+    s: NDArray  # (nm, n) weight toward column j + 1
+    ok: NDArray  # (nm, n) head and load inside the chart
+
+
 @dataclass(frozen=True)
 class HillChart:
-    """Turbine efficiency on a regular ``(head, load)`` grid.
+    """Turbine efficiency per operating mode on regular ``(head, load)`` grids.
 
     Attributes
     ----------
     heads : (nh,) [m] net heads, ascending
-    loads : (nl,) fraction of the head's maximum power (and flow), ascending
-    max_power : (nh,) [W] largest shaft power at each head
-    max_flow : (nh,) [m3/s] largest flow at each head
-    eta_by_power : (nh, nl) efficiency at ``P = loads * max_power``; NaN where unreachable
-    eta_by_flow : (nh, nl) efficiency at ``Q = loads * max_flow``
-    opening_by_power : (nh, nl) regulating-organ position at that power
-    flow_by_power : (nh, nl) [m3/s] flow at that power
-    mode_by_power : (nh, nl) operating mode (Pelton: active jets; 0 otherwise)
+    loads : (nl,) fraction of each mode's maximum power (and flow) at the head, ascending
+    modes : (nm,) int, operating modes (Pelton: active jets), ascending; ``[0]`` for a
+        single-mode runner
+    max_power_per_mode : (nm, nh) [W] largest shaft power of each mode at each head
+        (0 where the mode delivers none)
+    max_flow_per_mode : (nm, nh) [m3/s] largest flow of each mode at each head
+    eta_by_power_per_mode : (nm, nh, nl) efficiency of mode m at
+        ``P = loads * max_power_per_mode[m]``; NaN where unreachable
+    eta_by_flow_per_mode : (nm, nh, nl) efficiency at ``Q = loads * max_flow_per_mode[m]``
+    opening_by_power_per_mode : (nm, nh, nl) regulating-organ position at that power (a
+        Pelton's needle stroke of each of the mode's active jets)
+    flow_by_power_per_mode : (nm, nh, nl) [m3/s] flow at that power
     speed : [rad/s]; rho [kg/m3]; g [m/s2] the chart was solved for
+    meta : runner type and modes, for the record
+
+    The properties ``max_power`` and ``max_flow`` are the maxima over modes per head;
+    ``eta_by_power``, ``eta_by_flow``, ``opening_by_power``, ``flow_by_power`` and
+    ``mode_by_power`` are the best-mode envelope sampled on the common grid
+    ``loads * max_power`` (``loads * max_flow``), for inspection and comparison.
     """
 
     heads: NDArray
     loads: NDArray
-    max_power: NDArray
-    max_flow: NDArray
-    eta_by_power: NDArray
-    eta_by_flow: NDArray
-    opening_by_power: NDArray
-    flow_by_power: NDArray
-    mode_by_power: NDArray
+    modes: NDArray
+    max_power_per_mode: NDArray
+    max_flow_per_mode: NDArray
+    eta_by_power_per_mode: NDArray
+    eta_by_flow_per_mode: NDArray
+    opening_by_power_per_mode: NDArray
+    flow_by_power_per_mode: NDArray
     speed: float
     rho: float
     g: float
     meta: dict[str, Any] = field(default_factory=dict)
 
+    # ------------------------------------------------------------------ maxima, envelope
+    @property
+    def max_power(self) -> NDArray:
+        """(nh,) [W] largest shaft power at each head, over all modes."""
+        return np.max(self.max_power_per_mode, axis=0)
+
+    @property
+    def max_flow(self) -> NDArray:
+        """(nh,) [m3/s] largest flow at each head, over all modes."""
+        return np.max(self.max_flow_per_mode, axis=0)
+
+    @property
+    def eta_by_power(self) -> NDArray:
+        """(nh, nl) best-mode efficiency at ``P = loads * max_power``; NaN where unreachable."""
+        return self._envelope_by_power()[0]
+
+    @property
+    def opening_by_power(self) -> NDArray:
+        """(nh, nl) opening of the best mode at ``P = loads * max_power``."""
+        return self._envelope_by_power()[1]
+
+    @property
+    def flow_by_power(self) -> NDArray:
+        """(nh, nl) [m3/s] flow of the best mode at ``P = loads * max_power``."""
+        return self._envelope_by_power()[2]
+
+    @property
+    def mode_by_power(self) -> NDArray:
+        """(nh, nl) int, best mode at ``P = loads * max_power``; 0 where no mode reaches."""
+        return self._envelope_by_power()[3]
+
+    @property
+    def eta_by_flow(self) -> NDArray:
+        """(nh, nl) best-mode efficiency at ``Q = loads * max_flow``; NaN where unreachable."""
+        if self.modes.size == 1:
+            return self.eta_by_flow_per_mode[0]
+        eta = self._rows_at(self.eta_by_flow_per_mode, self.max_flow_per_mode)
+        return np.fmax.reduce(eta, axis=0)
+
+    def _rows_at(self, table: NDArray, maxima: NDArray) -> NDArray:
+        """Each mode's table at the grid heads and at ``loads * max over modes``."""
+        top = np.max(maxima, axis=0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ratio = top / maxima  # exactly 1 for the mode that has the maximum
+        load = self.loads[None, None, :] * ratio[:, :, None]
+        x = self.loads
+        j = np.clip(np.searchsorted(x, load, side="right") - 1, 0, x.size - 2)
+        s = (load - x[j]) / (x[j + 1] - x[j])
+        v0 = np.take_along_axis(table, j, axis=-1)
+        v1 = np.take_along_axis(table, j + 1, axis=-1)
+        inside = (load >= x[0]) & (load <= x[-1])
+        return np.where(inside, (1 - s) * v0 + s * v1, np.nan)
+
+    def _envelope_by_power(self) -> tuple[NDArray, NDArray, NDArray, NDArray]:
+        tables = (self.eta_by_power_per_mode, self.opening_by_power_per_mode,
+                  self.flow_by_power_per_mode)
+        if self.modes.size == 1:
+            eta, opening, flow = (t[0] for t in tables)
+            return eta, opening, flow, np.where(np.isfinite(eta), int(self.modes[0]), 0)
+        eta, opening, flow = (self._rows_at(t, self.max_power_per_mode) for t in tables)
+        best, found = _best(eta)
+        pick = [np.take_along_axis(a, best[None], axis=0)[0] for a in (eta, opening, flow)]
+        return (*pick, np.where(found, self.modes[best], 0))
+
     # ------------------------------------------------------------------ evaluation
-    def _row_position(self, head: NDArray) -> tuple[NDArray, NDArray, NDArray]:
-        """Lower grid row, weight toward the next row, and validity for each head."""
+    def _cells(self, value: NDArray, head: NDArray, scaling: tuple[NDArray, NDArray],
+               exponent: float) -> _Cells:
+        """Cells of ``value`` (power or flow) at ``head``, as a load of each mode's maximum.
+
+        ``scaling`` is ``(maxima / H**exponent, its slopes between grid heads)``: the mode
+        maxima are interpolated in that reduced form (affinity-law scaling), with the same
+        arithmetic as ``np.interp`` for each mode.
+        """
         h = self.heads
-        inside = (head >= h[0]) & (head <= h[-1])
+        reduced, slope = scaling
         i = np.clip(np.searchsorted(h, head, side="right") - 1, 0, h.size - 2)
-        t = (head - h[i]) / (h[i + 1] - h[i])
-        return i, np.where(inside, t, np.nan), inside
-
-    def _scale_at(self, values: NDArray, head: NDArray, exponent: float) -> NDArray:
-        """``values(H)`` interpolated as ``values / H**exponent`` (affinity-law scaling)."""
-        reduced = values / self.heads**exponent
-        return np.interp(head, self.heads, reduced) * head**exponent
-
-    def _corners(self, head: NDArray, load: NDArray
-                 ) -> tuple[NDArray, NDArray, NDArray, NDArray, NDArray]:
-        """Lower cell indices ``(i, j)``, weights ``(t, s)`` and validity of each point."""
-        i, t, inside = self._row_position(head)
+        inside = (head >= h[0]) & (head <= h[-1])
+        dh = head - h[i]
+        t = np.where(inside, dh / np.diff(h)[i], np.nan)
+        at = slope[:, i] * dh + reduced[:, i]
+        top = np.flatnonzero(head == h[-1])  # np.interp returns the last value exactly there
+        at[:, top] = reduced[:, -1:]
+        load = value / (at * head**exponent)
         x = self.loads
         ok = inside & (load >= x[0]) & (load <= x[-1])
         j = np.clip(np.searchsorted(x, load, side="right") - 1, 0, x.size - 2)
-        s = (load - x[j]) / (x[j + 1] - x[j])
-        return i, j, t, s, ok
+        s = (load - x[j]) / np.diff(x)[j]
+        return _Cells(i, t, j, s, ok)
 
-    def _table_at(self, table: NDArray, head: NDArray, load: NDArray) -> NDArray:
-        i, j, t, s, ok = self._corners(head, load)
-        v00 = table[i, j]
-        v01 = table[i, j + 1]
-        v10 = table[i + 1, j]
-        v11 = table[i + 1, j + 1]
-        value = (1 - t) * ((1 - s) * v00 + s * v01) + t * ((1 - s) * v10 + s * v11)
+    def _bilinear(self, table: NDArray, c: _Cells, mode: NDArray | None = None) -> NDArray:
+        """``table`` (nm, nh, nl) at the cells: every mode, or one index ``mode`` per sample."""
+        nh, nl = table.shape[1:]
+        flat = table.reshape(-1)
+        if mode is None:
+            k = np.arange(table.shape[0])[:, None]
+            j, s, ok = c.j, c.s, c.ok
+        else:
+            n = np.arange(c.i.size)
+            k, j, s, ok = mode, c.j[mode, n], c.s[mode, n], c.ok[mode, n]
+        base = (k * nh + c.i) * nl + j
+        t = c.t
+        u = 1 - s
+        value = ((1 - t) * (u * flat[base] + s * flat[base + 1])
+                 + t * (u * flat[base + nl] + s * flat[base + nl + 1]))
         return np.where(ok, value, np.nan)
 
-    def _load_of_power(self, p: NDArray, h: NDArray) -> NDArray:
+    def _scaling(self, maxima: NDArray, exponent: float) -> tuple[NDArray, NDArray]:
+        reduced = maxima / self.heads**exponent
+        return reduced, np.diff(reduced, axis=1) / np.diff(self.heads)
+
+    def _lookup(self, value: ArrayLike, head: ArrayLike, what: str) -> NDArray:
+        """One lookup of ``what`` at ``value`` (power [W]; flow [m3/s] for ``eta_q``).
+
+        Vectorised over the modes and over blocks of samples: the Python loop runs once per
+        block of ``_BLOCK`` samples, which keeps the (modes x block) temporaries small.
+        """
+        v, h = np.broadcast_arrays(np.asarray(value, dtype=float), np.asarray(head, dtype=float))
+        v, h, shape = v.reshape(-1), h.reshape(-1), v.shape
+        by_flow = what == "eta_q"
+        scaling = (self._scaling(self.max_flow_per_mode, 0.5) if by_flow
+                   else self._scaling(self.max_power_per_mode, 1.5))
+        eta_table = self.eta_by_flow_per_mode if by_flow else self.eta_by_power_per_mode
+        other = {"opening": self.opening_by_power_per_mode,
+                 "flow": self.flow_by_power_per_mode}.get(what)
+        out = np.empty(v.size, dtype=int if what == "mode" else float)
         with np.errstate(invalid="ignore", divide="ignore"):
-            return p / self._scale_at(self.max_power, h, 1.5)
+            for a in range(0, v.size, _BLOCK):
+                c = self._cells(v[a:a + _BLOCK], h[a:a + _BLOCK], scaling,
+                                0.5 if by_flow else 1.5)
+                eta = self._bilinear(eta_table, c)
+                if by_flow:
+                    out[a:a + _BLOCK] = np.fmax.reduce(eta, axis=0)
+                    continue
+                best, found = _best(eta)
+                if what == "eta":
+                    out[a:a + _BLOCK] = eta[best, np.arange(best.size)]
+                elif what == "mode":
+                    out[a:a + _BLOCK] = np.where(found, self.modes[best], -1)
+                else:
+                    out[a:a + _BLOCK] = self._bilinear(other, c, best)
+        return out.reshape(shape)
 
     def efficiency_at_power(self, power: ArrayLike, head: ArrayLike) -> NDArray:
         """Reference turbine efficiency at a shaft power [W] and net head [m].
 
-        NaN outside the chart (head outside ``heads``, load outside ``loads``) or where an
-        input is NaN: the caller counts such windows as having no reference.
+        The best mode's: the highest efficiency among the modes that can deliver ``power``.
+        NaN outside the chart (head outside ``heads``, no mode with the load inside
+        ``loads``) or where an input is NaN: the caller counts such windows as having no
+        reference.
         """
-        p = np.asarray(power, dtype=float)
-        h = np.asarray(head, dtype=float)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            load = p / self._scale_at(self.max_power, h, 1.5)
-            return self._table_at(self.eta_by_power, h, load)
+        return self._lookup(power, head, "eta")
 
     def efficiency_at_flow(self, flow: ArrayLike, head: ArrayLike) -> NDArray:
-        """Reference turbine efficiency at a flow [m3/s] and net head [m]; NaN outside."""
-        q = np.asarray(flow, dtype=float)
-        h = np.asarray(head, dtype=float)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            load = q / self._scale_at(self.max_flow, h, 0.5)
-            return self._table_at(self.eta_by_flow, h, load)
+        """Reference turbine efficiency at a flow [m3/s] and net head [m]; NaN outside.
+
+        The best over the modes that can pass ``flow``.
+        """
+        return self._lookup(flow, head, "eta_q")
 
     def opening_at_power(self, power: ArrayLike, head: ArrayLike) -> NDArray:
         """Regulating-organ position (fraction) that gives ``power`` [W] at ``head`` [m].
 
         With operating modes (Pelton jets) it is the needle stroke of each of the
-        :meth:`mode_at_power` active jets: the product ``jets * stroke`` (the total jet
-        opening, which sets the flow) is interpolated and divided by that jet count, so
-        that the stroke and the jet count belong together even where neighbouring grid
-        points run different jet counts (interpolating the strokes of different jet counts
-        would mix, e.g., 3 jets at 0.6 and 5 jets at 0.4 into a stroke no mode runs).
+        :meth:`mode_at_power` active jets, interpolated in that jet count's own table, so
+        that the stroke and the jet count belong together.
         """
-        p = np.asarray(power, dtype=float)
-        h = np.asarray(head, dtype=float)
-        load = self._load_of_power(p, h)
-        modes = np.asarray(self.mode_by_power)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            if not np.any(modes > 0):
-                return self._table_at(self.opening_by_power, h, load)
-            total = self._table_at(self.opening_by_power * np.where(modes > 0, modes, 1),
-                                   h, load)
-            mode = self.mode_at_power(p, h)
-            return np.where(mode > 0, total / np.where(mode > 0, mode, 1),
-                            np.where(mode == 0, total, np.nan))
+        return self._lookup(power, head, "opening")
 
     def flow_at_power(self, power: ArrayLike, head: ArrayLike) -> NDArray:
-        """Flow [m3/s] of the reference at ``power`` [W] and ``head`` [m]."""
-        p = np.asarray(power, dtype=float)
-        h = np.asarray(head, dtype=float)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            load = p / self._scale_at(self.max_power, h, 1.5)
-            return self._table_at(self.flow_by_power, h, load)
+        """Flow [m3/s] of the reference (the best mode) at ``power`` [W] and ``head`` [m]."""
+        return self._lookup(power, head, "flow")
 
     def mode_at_power(self, power: ArrayLike, head: ArrayLike) -> NDArray:
         """Operating mode (Pelton: active jets) at ``power`` [W] and ``head`` [m]; -1 outside.
 
-        The largest mode among the grid points that carry weight in the interpolation:
-        each of them reaches its own load with its mode, and more jets reach at least as
-        much power, so that jet count can deliver the interpolated power (stroke <= 1).
-        -1 wherever :meth:`efficiency_at_power` is NaN (head or load outside the chart,
-        NaN input, no reachable operating point).
+        The mode with the highest efficiency among those that can deliver the power (the
+        fewest on a tie); 0 for a single-mode runner. -1 wherever
+        :meth:`efficiency_at_power` is NaN (head or load outside the chart, NaN input, no
+        reachable operating point). A reference, not a switching schedule: the unit's own
+        schedule and limits prevail.
         """
-        p = np.asarray(power, dtype=float)
-        h = np.asarray(head, dtype=float)
-        load = self._load_of_power(p, h)
-        with np.errstate(invalid="ignore"):
-            i, j, t, s, ok = self._corners(h, load)
-            eta = self._table_at(self.eta_by_power, h, load)
-            m = self.mode_by_power
-            mode = np.where((1 - t) * (1 - s) > 0, m[i, j], 0)
-            mode = np.maximum(mode, np.where((1 - t) * s > 0, m[i, j + 1], 0))
-            mode = np.maximum(mode, np.where(t * (1 - s) > 0, m[i + 1, j], 0))
-            mode = np.maximum(mode, np.where(t * s > 0, m[i + 1, j + 1], 0))
-        return np.where(ok & np.isfinite(eta), mode, -1).astype(int)
+        return self._lookup(power, head, "mode")
 
     def best_efficiency_point(self, head: float) -> BestEfficiencyPoint:
         """BEP at ``head`` [m] on the chart's load grid (interpolated between grid heads)."""
         h = np.full(self.loads.shape, float(head))
-        power = self.loads * float(self._scale_at(self.max_power, np.array([head]), 1.5)[0])
+        at = np.array([float(head)])
+        top = np.interp(at, self.heads, self.max_power / self.heads**1.5) * at**1.5
+        power = self.loads * float(top[0])
         eta = self.efficiency_at_power(power, h)
         if not np.isfinite(eta).any():
             raise ValueError(f"head {head:.3f} m is outside the hill chart "
@@ -206,33 +321,30 @@ class HillChart:
     # ------------------------------------------------------------------ storage
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (lists of floats; NaN as None)."""
-        def clean(a: NDArray) -> list:
-            return np.where(np.isfinite(a), a, np.nan).astype(object).tolist()
-
         out: dict[str, Any] = {}
-        for name in ("heads", "loads", "max_power", "max_flow", "eta_by_power", "eta_by_flow",
-                     "opening_by_power", "flow_by_power"):
-            values = clean(np.asarray(getattr(self, name), dtype=float))
+        for name in ("heads", "loads", *_STORED):
+            values = np.asarray(getattr(self, name), dtype=float).astype(object).tolist()
             out[name] = _nan_to_none(values)
-        out["mode_by_power"] = np.asarray(self.mode_by_power, dtype=int).tolist()
+        out["modes"] = np.asarray(self.modes, dtype=int).tolist()
         out.update(speed=self.speed, rho=self.rho, g=self.g, meta=self.meta)
         return out
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> HillChart:
         """Inverse of :meth:`to_dict`."""
-        def arr(name: str) -> NDArray:
-            return np.array(_none_to_nan(data[name]), dtype=float)
+        arrays = {name: np.array(_none_to_nan(data[name]), dtype=float)
+                  for name in ("heads", "loads", *_STORED)}
+        return cls(**arrays, modes=np.array(data["modes"], dtype=int),
+                   speed=float(data["speed"]), rho=float(data["rho"]), g=float(data["g"]),
+                   meta=dict(data.get("meta", {})))
 
-        return cls(
-            heads=arr("heads"), loads=arr("loads"), max_power=arr("max_power"),
-            max_flow=arr("max_flow"), eta_by_power=arr("eta_by_power"),
-            eta_by_flow=arr("eta_by_flow"), opening_by_power=arr("opening_by_power"),
-            flow_by_power=arr("flow_by_power"),
-            mode_by_power=np.array(data["mode_by_power"], dtype=int),
-            speed=float(data["speed"]), rho=float(data["rho"]), g=float(data["g"]),
-            meta=dict(data.get("meta", {})),
-        )
+
+def _best(eta: NDArray) -> tuple[NDArray, NDArray]:
+    """Index of the highest finite value along axis 0 (the first on a tie) and whether any."""
+    finite = np.isfinite(eta)
+    if eta.shape[0] == 1:
+        return np.zeros(eta.shape[1:], dtype=np.intp), finite[0]
+    return np.argmax(np.where(finite, eta, -np.inf), axis=0), finite.any(axis=0)
 
 
 def _nan_to_none(values: Any) -> Any:
@@ -289,61 +401,47 @@ def build_hill_chart(model: RunnerModel, *, heads: ArrayLike, speed: float,
     heads : [m] net heads, ascending, covering the unit's operating range with a margin
     speed : [rad/s] synchronous speed
     openings : regulating-organ positions to solve at (fraction, ascending)
-    loads : resampling grid, fraction of each head's maximum power and flow
+    loads : resampling grid, fraction of each mode's maximum power and flow at each head
     modes : Pelton: the jet counts the unit may run (default: only all jets); else ignored
     rho, g : [kg/m3], [m/s2]
 
     Returns
     -------
     HillChart
+        One table per mode (sorted ascending); mode 0 when ``modes`` is None.
     """
     h = np.asarray(heads, dtype=float)
     y = np.asarray(openings, dtype=float)
     x = np.asarray(loads, dtype=float)
     if h.ndim != 1 or h.size < 2 or np.any(np.diff(h) <= 0):
         raise ValueError("heads must be at least two ascending values")
-    mode_list: list[int | None] = list(modes) if modes else [None]
+    mode_list: list[int | None] = sorted({int(m) for m in modes}) if modes else [None]
     hh, yy = np.meshgrid(h, y, indexing="ij")
-    solved = []
-    for mode in mode_list:
-        sol = model.solve(hh, speed, yy, jets=mode, rho=rho, g=g)
-        solved.append((0 if mode is None else int(mode), sol))
-
-    nh, nl = h.size, x.size
-    max_power = np.array([np.nanmax([np.nanmax(np.where(s.efficiency[i] > 0,
-                                                        s.shaft_power[i], np.nan),
-                                               initial=0.0) for _, s in solved])
-                          for i in range(nh)])
-    max_flow = np.array([np.nanmax([np.nanmax(np.where(s.efficiency[i] > 0, s.flow[i], np.nan),
-                                              initial=0.0) for _, s in solved])
-                         for i in range(nh)])
-    if np.any(max_power <= 0):
-        bad = h[max_power <= 0]
+    nm, nh, nl = len(mode_list), h.size, x.size
+    max_p = np.zeros((nm, nh))
+    max_q = np.zeros((nm, nh))
+    tables = {name: np.full((nm, nh, nl), np.nan) for name in _STORED[2:]}
+    for k, mode in enumerate(mode_list):
+        s = model.solve(hh, speed, yy, jets=mode, rho=rho, g=g)
+        positive = s.efficiency > 0
+        power = np.where(positive, s.shaft_power, np.nan)
+        flow = np.where(positive, s.flow, np.nan)
+        max_p[k] = np.nanmax(power, axis=1, initial=0.0)
+        max_q[k] = np.nanmax(flow, axis=1, initial=0.0)
+        for i in range(nh):
+            eta, opening, q = _resample_row(power[i], [s.efficiency[i], y, s.flow[i]],
+                                            x * max_p[k, i])
+            tables["eta_by_power_per_mode"][k, i] = eta
+            tables["opening_by_power_per_mode"][k, i] = opening
+            tables["flow_by_power_per_mode"][k, i] = q
+            (tables["eta_by_flow_per_mode"][k, i],) = _resample_row(
+                flow[i], [s.efficiency[i]], x * max_q[k, i])
+    if np.any(max_p.max(axis=0) <= 0):
+        bad = h[max_p.max(axis=0) <= 0]
         raise ValueError(f"the model delivers no power at head(s) {bad.tolist()} m")
-    eta_p = np.full((nh, nl), np.nan)
-    eta_q = np.full((nh, nl), np.nan)
-    open_p = np.full((nh, nl), np.nan)
-    flow_p = np.full((nh, nl), np.nan)
-    mode_p = np.zeros((nh, nl), dtype=int)
-    for i in range(nh):
-        p_targets = x * max_power[i]
-        q_targets = x * max_flow[i]
-        for mode, s in solved:
-            positive = s.efficiency[i] > 0
-            power = np.where(positive, s.shaft_power[i], np.nan)
-            eta, opening, flow = _resample_row(power, [s.efficiency[i], y, s.flow[i]],
-                                               p_targets)
-            better = np.isfinite(eta) & ~(eta <= eta_p[i])
-            eta_p[i] = np.where(better, eta, eta_p[i])
-            open_p[i] = np.where(better, opening, open_p[i])
-            flow_p[i] = np.where(better, flow, flow_p[i])
-            mode_p[i] = np.where(better, mode, mode_p[i])
-            (eta_by_q,) = _resample_row(np.where(positive, s.flow[i], np.nan),
-                                        [s.efficiency[i]], q_targets)
-            eta_q[i] = np.fmax(eta_q[i], eta_by_q)
+    numbers = [0 if m is None else m for m in mode_list]
     return HillChart(
-        heads=h, loads=x, max_power=max_power, max_flow=max_flow, eta_by_power=eta_p,
-        eta_by_flow=eta_q, opening_by_power=open_p, flow_by_power=flow_p,
-        mode_by_power=mode_p, speed=float(speed), rho=float(rho), g=float(g),
-        meta={"runner_type": model.runner_type, "modes": [m for m, _ in solved]},
+        heads=h, loads=x, modes=np.array(numbers, dtype=int), max_power_per_mode=max_p,
+        max_flow_per_mode=max_q, **tables, speed=float(speed), rho=float(rho), g=float(g),
+        meta={"runner_type": model.runner_type, "modes": numbers},
     )

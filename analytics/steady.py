@@ -110,6 +110,11 @@ class SteadyTolerances:
                              f"got {self.max_gap_s!r}")
 
 
+#: Beyond this many slots with a missing value, a signal takes the full-copy path (faster
+#: then than repairing slot by slot).
+MAX_SLOTS_REPAIRED = 2_000
+
+
 def decode_reason(reason: int) -> list[str]:
     """Names of the failed tests in a reason bitmask, e.g. ``['POWER', 'HEAD']``."""
     return [flag.name for flag in UnsteadyReason if int(reason) & flag.value and flag.name]
@@ -284,21 +289,37 @@ def steady_windows(ts: npt.ArrayLike, signals: Mapping[str, npt.ArrayLike], *,
     any_missing = np.zeros(starts.size, dtype=bool)
     for name in names:
         x = arrays[name]
-        finite = np.isfinite(x)
-        if finite.all():  # the common case: no copies
-            count = n_samples
-            clean = x
-            total = np.add.reduceat(x, starts)
-        else:
+        with np.errstate(invalid="ignore"):
+            total = np.add.reduceat(x, starts)  # NaN (or inf) where a slot misses a value
+        count = n_samples
+        clean = x
+        bad = np.flatnonzero(~np.isfinite(total))
+        if bad.size > MAX_SLOTS_REPAIRED:
+            finite = np.isfinite(x)
             count = np.add.reduceat(finite, starts, dtype=np.int64)
             clean = np.where(finite, x, np.nan)  # +-inf counts as missing, like NaN
             total = np.add.reduceat(np.where(finite, x, 0.0), starts)
+        elif bad.size:
+            # few slots hold a missing value: recount only those, no full-length copies
+            count = n_samples.copy()
+            for k in bad:
+                part = x[starts[k]:last[k] + 1]
+                ok = np.isfinite(part)
+                count[k] = int(ok.sum())
+                total[k] = float(part[ok].sum())
         with np.errstate(invalid="ignore", divide="ignore"):
             mean = np.where(count > 0, total / count, np.nan)
         means[name] = mean
         if name in checked:
             high = np.fmax.reduceat(clean, starts)
             low = np.fmin.reduceat(clean, starts)
+            if clean is x and bad.size:
+                # fmax/fmin skip NaN but not inf: a slot with inf is judged on its finite part
+                for k in bad:
+                    part = x[starts[k]:last[k] + 1]
+                    part = part[np.isfinite(part)]
+                    high[k] = part.max() if part.size else np.nan
+                    low[k] = part.min() if part.size else np.nan
             deviations[name] = np.maximum(high - mean, mean - low)
             any_missing |= count < n_samples
     columns.update({f"mean_{name}": means[name] for name in names})

@@ -10,6 +10,6 @@ from importlib.metadata import PackageNotFoundError, version
 try:
     __version__ = version("hydrodrift")
 except PackageNotFoundError:  # running from a source tree that is not installed
-    __version__ = "0.0.0+unknown"
+    __version__ = "0.2.0"
 
 __all__ = ["__version__"]

@@ -268,6 +268,30 @@ Geometry = Annotated[
 ]
 
 
+class SteadyOverrides(_Strict):
+    """Per-unit overrides of the steady-window tolerances (analytics.steady.SteadyTolerances).
+
+    Any field left out keeps the service default; see docs/plant-file.md for the defaults
+    and where they come from.
+    """
+
+    window_s: int | None = Field(default=None, ge=60, le=86_400,
+                                 description="[s] clock-aligned window length")
+    power: float | None = Field(default=None, gt=0, lt=0.5,
+                                description="largest |P - mean P| as a fraction of rated power")
+    head: float | None = Field(default=None, gt=0, lt=0.5,
+                               description="largest |H - mean H| as a fraction of mean H")
+    opening: float | None = Field(default=None, gt=0, lt=0.5,
+                                  description="largest |opening - mean| (fraction 0..1)")
+    speed: float | None = Field(default=None, gt=0, lt=0.5,
+                                description="largest |n - mean n| as a fraction of mean n")
+    min_load: float | None = Field(default=None, ge=0, lt=1,
+                                   description="lowest mean power, fraction of rated power")
+    min_coverage: float | None = Field(default=None, gt=0, le=1,
+                                       description="fewest samples, fraction of expected")
+    max_gap_s: float | None = Field(default=None, gt=0, description="[s] longest sample gap")
+
+
 class UnitSpec(_Strict):
     """A turbine-generator unit."""
 
@@ -297,6 +321,9 @@ class UnitSpec(_Strict):
     )
     geometry: Geometry | None = None
     reference_points: tuple[ReferencePoint, ...] = Field(default=(), max_length=10_000)
+    steady: SteadyOverrides | None = Field(
+        default=None, description="steady-window tolerances of this unit (defaults if absent)"
+    )
 
     @field_validator("effective_from")
     @classmethod

@@ -166,8 +166,22 @@ def head_grid(spec: UnitSpec) -> np.ndarray:
     return np.linspace(HEAD_MARGIN[0] * min(heads), HEAD_MARGIN[1] * max(heads), HEAD_POINTS)
 
 
+_CALIBRATIONS: dict[tuple[str, float], tuple[CalibrationResult, HillChart]] = {}
+
+
 def calibrate_unit(spec: UnitSpec, *, g: float) -> tuple[CalibrationResult, HillChart]:
-    """Fit the unit's model to its reference points and solve its hill chart."""
+    """Fit the unit's model to its reference points and solve its hill chart.
+
+    Deterministic in (configuration, gravity), so a process keeps the result for a
+    configuration it has fitted before (tests and benchmarks build many databases).
+    """
+    key = (spec.model_dump_json(), round(g, 9))
+    if key not in _CALIBRATIONS:
+        _CALIBRATIONS[key] = _calibrate_unit(spec, g=g)
+    return _CALIBRATIONS[key]
+
+
+def _calibrate_unit(spec: UnitSpec, *, g: float) -> tuple[CalibrationResult, HillChart]:
     rho = float(density(REFERENCE_WATER_TEMPERATURE, 101_325.0))
     model = runner_model(spec, rho=rho, g=g)
     data = reference_data(spec)
@@ -232,12 +246,17 @@ def ensure_reference(session: Session, plant: Plant, unit: Unit, version: UnitCo
     return row, True
 
 
-_CHARTS: dict[tuple[int, str], HillChart] = {}
+_CHARTS: dict[tuple, HillChart] = {}
 
 
 def reference_chart(reference: ReferenceModel) -> HillChart:
-    """The stored hill chart of ``reference`` (parsed once per process)."""
-    key = (reference.id, reference.code_version)
+    """The stored hill chart of ``reference`` (parsed once per process).
+
+    The cache key holds the row's creation instant besides its id, so that two databases
+    used by one process (tests, benchmarks, a migration) never share a chart.
+    """
+    key = (reference.id, reference.unit_id, reference.version,
+           reference.created_at.isoformat() if reference.created_at else None)
     chart = _CHARTS.get(key)
     if chart is None:
         chart = HillChart.from_dict(reference.hill_chart)

@@ -19,6 +19,7 @@ from analytics.drift import (
     MIN_SEGMENT_WEEKS,
     change_points,
     iso_week,
+    robust_noise_sigma,
     theil_sen_trend,
     weekly_drift,
 )
@@ -29,6 +30,16 @@ from store.models import EfficiencyWindow, Plant, Unit, WeeklyDrift
 
 #: Fewest weeks with a level before a trend is stated.
 MIN_TREND_WEEKS = 8
+#: Floor of the week-to-week noise of the weekly median deviation (fraction; 0.1 point).
+#: The bootstrap noise of a week's median is a few hundredths of a point, but systematic
+#: effects (head and water-temperature seasons, dispatch patterns, the reference's own
+#: interpolation) move a healthy unit's weekly level by about a tenth of a point; without
+#: the floor these would be reported as change points (common practice for index tests:
+#: their repeatability is a few tenths of a point).
+WEEKLY_SIGMA_FLOOR = 0.001
+#: Smallest level shift reported as a change point (fraction; 0.25 point, common practice:
+#: below it an index test cannot tell a shift from its repeatability).
+MIN_REPORTED_SHIFT = 0.0025
 
 
 def _windows(session: Session, unit: Unit, since: datetime | None) -> pd.DataFrame:
@@ -104,7 +115,9 @@ def refresh_weeks(session: Session, settings: Settings, plant: Plant, unit: Unit
                                 confidence=settings.confidence, min_points=MIN_TREND_WEEKS)
         cp_week, cp_size = None, None
         if np.isfinite(series_v).sum() >= 2 * MIN_SEGMENT_WEEKS:
-            cps = change_points(series_v, weeks=[*epoch["week"], rec.week])
+            sigma = max(robust_noise_sigma(series_v), WEEKLY_SIGMA_FLOOR)
+            cps = change_points(series_v, sigma=sigma, weeks=[*epoch["week"], rec.week])
+            cps = cps[cps["size"].abs() >= MIN_REPORTED_SHIFT]
             if len(cps):
                 cp_week, cp_size = str(cps["week"].iloc[-1]), float(cps["size"].iloc[-1])
         row = dict(

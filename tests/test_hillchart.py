@@ -1,11 +1,12 @@
-"""Hill chart: interpolated lookups against a direct solve, edges, Pelton envelope, BEP, storage.
+"""Hill chart: interpolated lookups against a direct solve, edges, Pelton jet counts, BEP, storage.
 
 The chart is a resampled, interpolated copy of a runner model, so most checks here compare it
 with the same model solved directly at the same operating state: they test the resampling and
 interpolation, not the physics (that is tests/test_francis.py and tests/test_pelton.py).
 Interpolation tolerances were measured on 50,000 random states (seeds 1 and 2, not the seed
 used below) with the default grids (50 openings, 49 loads) and 21 heads, and set a little
-above the largest error seen; the value measured is given beside each bound.
+above the largest error seen; the value measured is given beside each bound. The bilinear
+lookup itself is checked against scipy's RegularGridInterpolator (a reference library).
 """
 
 from __future__ import annotations
@@ -16,7 +17,9 @@ import time
 
 import numpy as np
 import pytest
+from scipy.interpolate import RegularGridInterpolator
 from scipy.optimize import minimize_scalar
+from scipy.optimize.elementwise import find_root
 
 from analytics.hillchart import DEFAULT_LOADS, HillChart, build_hill_chart
 from analytics.runners.francis import FrancisGeometry, FrancisModel
@@ -93,6 +96,12 @@ def test_grid_rows_are_the_model_solved_directly(francis_chart: HillChart) -> No
                                francis_chart.eta_by_power[:, 30], rtol=1e-12)
     # a Francis chart has no operating modes: 0 inside the chart
     assert np.all(francis_chart.mode_at_power(power, HEADS) == 0)
+    # one mode (0): its table is the common-grid table, its maximum the chart's maximum
+    assert francis_chart.modes.tolist() == [0]
+    assert francis_chart.eta_by_power_per_mode.shape == (1, HEADS.size, DEFAULT_LOADS.size)
+    np.testing.assert_array_equal(francis_chart.eta_by_power_per_mode[0],
+                                  francis_chart.eta_by_power)
+    np.testing.assert_array_equal(francis_chart.max_power_per_mode[0], francis_chart.max_power)
 
 
 def test_rejects_a_head_grid_that_is_not_ascending() -> None:
@@ -136,47 +145,275 @@ def test_francis_lookups_agree_with_a_direct_solve(francis_chart: HillChart) -> 
     assert np.max(np.abs(q / sol.flow - 1.0)[low]) < 1.6e-3
 
 
-def _pelton_direct(power: np.ndarray, head: np.ndarray, jets: int) -> np.ndarray:
-    """Efficiency of the Pelton model delivering ``power`` with ``jets`` jets, solved directly.
+def _pelton_direct(power: np.ndarray, head: np.ndarray, jets: int | np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(stroke, efficiency, flow) of ``jets`` jets delivering ``power`` [W], solved directly.
 
-    The model's flow is ``jets * stroke * A_jet * c1`` and the work per kilogram does not
-    depend on the stroke (analytics/runners/pelton.py), so the shaft power is affine in the
-    stroke: two solves (stroke 0 and 1) give the stroke for a power exactly.
+    With the part-stroke nozzle loss the jet speed falls as the needle closes
+    (analytics/runners/pelton.py), so the shaft power is no longer affine in the stroke; it
+    still rises monotonically with it (flow and work per kg both rise with the stroke), so
+    a bracketed root-find on [0, 1] gives the one stroke. scipy's elementwise Chandrupatla
+    solver is used, independently of the chart's resampling and of the project's own
+    bisection (analytics/runners/base.py). NaN where the jets cannot deliver the power.
     """
-    p0 = PELTON.solve(head, PELTON_SPEED, 0.0, jets=jets, rho=RHO, g=G).shaft_power
-    p1 = PELTON.solve(head, PELTON_SPEED, 1.0, jets=jets, rho=RHO, g=G).shaft_power
-    stroke = (power - p0) / (p1 - p0)
-    eta = PELTON.solve(head, PELTON_SPEED, np.clip(stroke, 0.0, 1.0), jets=jets,
-                       rho=RHO, g=G).efficiency
-    return np.where((stroke > 0) & (stroke <= 1.0), eta, np.nan)
+    power, head, jets = np.broadcast_arrays(np.asarray(power, dtype=float),
+                                            np.asarray(head, dtype=float), jets)
+
+    def excess(y: np.ndarray, p: np.ndarray, h: np.ndarray, n: np.ndarray) -> np.ndarray:
+        return PELTON.solve(h, PELTON_SPEED, y, jets=n, rho=RHO, g=G).shaft_power - p
+
+    at_full = excess(np.ones_like(power), power, head, jets)
+    # at full stroke the power may equal P_max to round-off (load 1.0 of the chart)
+    full = np.abs(at_full) <= 1e-12 * np.abs(power)
+    bracketed = (at_full > 0) & ~full & (power > 0)
+    root = find_root(excess, (np.zeros_like(power), np.ones_like(power)),
+                     args=(power, head, jets), tolerances={"xatol": 1e-14, "xrtol": 1e-14})
+    assert np.all(root.success[bracketed])
+    stroke = np.where(full, 1.0, np.where(bracketed, root.x, np.nan))
+    sol = PELTON.solve(head, PELTON_SPEED, np.where(np.isfinite(stroke), stroke, 0.5),
+                       jets=jets, rho=RHO, g=G)
+    ok = np.isfinite(stroke)
+    # the root is a root: the power comes back to round-off
+    assert np.all(np.abs(sol.shaft_power[ok] / power[ok] - 1.0) < 1e-10)
+    return (stroke, np.where(ok, sol.efficiency, np.nan), np.where(ok, sol.flow, np.nan))
 
 
-def test_pelton_lookups_agree_with_a_direct_solve(pelton_chart: HillChart) -> None:
-    rng = np.random.default_rng(SEED)
-    head = rng.uniform(400.0, 600.0, 4000)
+def _pelton_best(power: np.ndarray, head: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(jets, efficiency, flow) of the best of 1..6 jets at each power [W] and head [m].
+
+    What an operator following the model would run (common practice: jet-switching
+    schedules pick the count with the best efficiency); jets 0 where no count reaches.
+    """
+    solved = [_pelton_direct(power, head, k) for k in MODES]
+    eta = np.stack([s[1] for s in solved])
+    flow = np.stack([s[2] for s in solved])
+    any_ok = np.isfinite(eta).any(axis=0)
+    best = np.argmax(np.where(np.isfinite(eta), eta, -np.inf), axis=0)
+    cols = np.arange(eta.shape[1])
+    return (np.where(any_ok, np.asarray(MODES)[best], 0),
+            np.where(any_ok, eta[best, cols], np.nan), np.where(any_ok, flow[best, cols], np.nan))
+
+
+def _pelton_lookup_errors(chart: HillChart, seed: int, n: int) -> dict[str, np.ndarray]:
+    """Random states at random jet counts, looked up on the chart against the best jet count.
+
+    Returns the loads, whether each state's cell of the common load grid straddles a jet
+    switch, and the errors of each lookup (used by the tests below, and to measure their
+    bounds with other seeds).
+    """
+    rng = np.random.default_rng(seed)
+    head = rng.uniform(400.0, 600.0, n)
     jets = rng.integers(1, 7, head.size)
     stroke = rng.uniform(0.05, 0.98, head.size)
     sol = PELTON.solve(head, PELTON_SPEED, stroke, jets=jets, rho=RHO, g=G)
-    load = sol.shaft_power / _max_power_at(pelton_chart, head)
-    keep = load >= 0.05  # one jet at a small stroke is below the chart's first load (0.04)
-    head, stroke, jets, load = head[keep], stroke[keep], jets[keep], load[keep]
-    sol = PELTON.solve(head, PELTON_SPEED, stroke, jets=jets, rho=RHO, g=G)
-    inside = load >= 0.2
-    eta = pelton_chart.efficiency_at_power(sol.shaft_power, head)
-    # measured 1.4e-4 at loads >= 0.2 (the state's own jet count need not be the chart's:
-    # in this model every jet count gives the same efficiency at a power, see below)
-    assert np.max(np.abs(eta - sol.efficiency)[inside]) < 2.0e-4
-    # the chart's stroke and jet count belong together: running them gives the power back
-    # (measured 6.2e-5; before the fix in opening_at_power this was up to 0.5 where
-    # neighbouring grid points ran different jet counts)
-    y = pelton_chart.opening_at_power(sol.shaft_power, head)
-    mode = pelton_chart.mode_at_power(sol.shaft_power, head)
-    assert np.all((mode >= 1) & (mode <= 6)) and np.all((y > 0) & (y <= 1.0))
+    load = sol.shaft_power / _max_power_at(chart, head)
+    keep = load >= 0.05  # one jet at a small stroke is a small load of the whole unit
+    head, jets, load = head[keep], jets[keep], load[keep]
+    power = sol.shaft_power[keep]
+    best_jets, best_eta, best_flow = _pelton_best(power, head)
+    eta = chart.efficiency_at_power(power, head)
+    y = chart.opening_at_power(power, head)
+    mode = chart.mode_at_power(power, head)
     again = PELTON.solve(head, PELTON_SPEED, y, jets=mode, rho=RHO, g=G)
-    assert np.max(np.abs(again.shaft_power / sol.shaft_power - 1.0)[inside]) < 1.0e-4
-    assert np.max(np.abs(again.shaft_power / sol.shaft_power - 1.0)) < 2.0e-4
-    np.testing.assert_allclose(pelton_chart.flow_at_power(sol.shaft_power, head)[inside],
-                               sol.flow[inside], rtol=2.0e-4)
+    # the state's cell of the common (head, load of the whole unit) grid, from the chart's
+    # public best-mode table: do its four corners run different jet counts? A table of the
+    # best over jet counts on that one grid would interpolate across the switch there.
+    i = np.clip(np.searchsorted(chart.heads, head, side="right") - 1, 0, chart.heads.size - 2)
+    j = np.clip(np.searchsorted(chart.loads, load, side="right") - 1, 0, chart.loads.size - 2)
+    m = chart.mode_by_power
+    corners = np.stack([m[i, j], m[i, j + 1], m[i + 1, j], m[i + 1, j + 1]])
+    return {
+        "load": load, "jets": jets, "best_jets": best_jets, "mode": mode, "stroke": y,
+        "straddle": corners.min(axis=0) != corners.max(axis=0),
+        # the state's own jet count is one candidate, so it is never better than the best
+        "own_over_best": sol.efficiency[keep] - best_eta,
+        # the chart against the best direct solve
+        "eta": eta - best_eta,
+        # the chart's (stroke, jet count) run directly: its power and its efficiency
+        "power_back": again.shaft_power / power - 1.0,
+        "eta_at_mode": eta - again.efficiency,
+        "flow": chart.flow_at_power(power, head) / best_flow - 1.0,
+    }
+
+
+def test_pelton_lookups_agree_with_a_direct_solve(pelton_chart: HillChart) -> None:
+    # The states run random jet counts, as a unit off its schedule would; the chart holds the
+    # best jet count, so the reference for each state is the best of 1..6 jets at the
+    # state's power, solved directly (_pelton_best), not the state itself.
+    e = _pelton_lookup_errors(pelton_chart, SEED, 4000)
+    upper = e["load"] >= 0.2
+    assert upper.sum() > 2000 and (~upper).sum() > 1000
+    assert np.all(e["own_over_best"] <= 1e-12)
+    # the states are a mix: most run more jets than the best and lose efficiency by it
+    # (fewer jets at a larger stroke win; tests/test_pelton.py shows the physics)
+    assert np.mean(e["jets"] > e["best_jets"]) > 0.5
+    assert np.min(e["own_over_best"]) < -0.05  # measured -0.073
+    mode, y = e["mode"], e["stroke"]
+    assert np.all((mode >= 1) & (mode <= 6)) and np.all((y > 0) & (y <= 1.0))
+    # the chart's jet count is the best one, for every state (measured: 92,605 of 92,605
+    # states over seeds 1 and 2; see the jet-switch edge test for the one exception)
+    assert np.array_equal(mode, e["best_jets"])
+    # loads >= 0.2: each jet count's table follows its own smooth curve (measured 7.2e-5
+    # for the efficiency against the best direct value, 6.3e-5 for the power of the
+    # chart's (stroke, jet count) run directly, 7.6e-5 for the efficiency of that run,
+    # 3.8e-5 for the flow)
+    assert np.max(np.abs(e["eta"])[upper]) < 1.0e-4
+    assert np.max(np.abs(e["power_back"])[upper]) < 1.0e-4
+    assert np.max(np.abs(e["eta_at_mode"])[upper]) < 1.0e-4
+    assert np.max(np.abs(e["flow"])[upper]) < 5.0e-5
+    # loads 0.05-0.2 of the whole unit are few jets at mid strokes, each on its own 49-load
+    # grid; the part-stroke loss makes the curves steeper there (measured 2.9e-4, 1.2e-4,
+    # 3.1e-4, 6.1e-5)
+    low = ~upper
+    assert np.max(np.abs(e["eta"])[low]) < 3.5e-4
+    assert np.max(np.abs(e["power_back"])[low]) < 1.5e-4
+    assert np.max(np.abs(e["eta_at_mode"])[low]) < 3.5e-4
+    assert np.max(np.abs(e["flow"])[low]) < 8.0e-5
+
+
+def test_pelton_lookups_near_a_jet_switch_match_the_envelope(pelton_chart: HillChart) -> None:
+    # The states whose cell of the common load grid straddles a jet switch (10 % of them):
+    # the best efficiency jumps there (k jets at full stroke, then k + 1 at a stroke near
+    # k/(k + 1) with more part-stroke loss), and one table of the best over jet counts on
+    # that grid missed the jump by up to 3.0e-3 (efficiency) and 7.7e-3 (power of its
+    # stroke and jet count) at loads >= 0.2, and ran one jet too many in some of them.
+    # Each jet count's own table has no jump. Bounds of the review: 2e-4 and 1e-4
+    # (measured now 6.5e-5 and 5.7e-5 over seeds 1 and 2; 6.8e-5 for the efficiency of the
+    # chart's stroke and jet count, 3.5e-5 for the flow; 9.4e-5, 7.0e-5, 4.5e-5 below 0.2).
+    e = _pelton_lookup_errors(pelton_chart, SEED, 4000)
+    assert 0.05 < np.mean(e["straddle"]) < 0.2  # measured 0.095
+    two = e["straddle"] & (e["load"] >= 0.2)
+    assert two.sum() > 100
+    assert np.max(np.abs(e["eta"])[two]) < 2.0e-4
+    assert np.max(np.abs(e["power_back"])[two]) < 1.0e-4
+    assert np.max(np.abs(e["eta_at_mode"])[two]) < 2.0e-4
+    assert np.max(np.abs(e["flow"])[two]) < 5.0e-5
+    assert np.array_equal(e["mode"][e["straddle"]], e["best_jets"][e["straddle"]])
+    below = e["straddle"] & (e["load"] < 0.2)
+    assert below.sum() > 50
+    assert np.max(np.abs(e["eta"])[below]) < 2.0e-4
+    assert np.max(np.abs(e["power_back"])[below]) < 1.0e-4
+
+
+def test_pelton_jet_switch_edge_follows_p_max_between_heads(pelton_chart: HillChart) -> None:
+    # The chart knows k jets' full power P_k(H) at its grid heads and reads it between them
+    # from P_k / H^1.5 interpolated linearly (affinity scaling, IEC 60193 unit quantities,
+    # from memory). Where that reads low, a power between the chart's P_k and the model's
+    # reads as beyond k jets and the chart runs k + 1: a limit of the head grid (it shrinks
+    # with the head step squared), held here so that it does not grow unnoticed. Measured:
+    # 27 of 1,000,000 random states fall in such a gap (seed 11).
+    rng = np.random.default_rng(SEED)
+    head = np.concatenate([HEADS, rng.uniform(400.0, 600.0, 400)])
+    on_grid = np.arange(head.size) < HEADS.size
+    chart = pelton_chart
+    for k in range(1, 6):
+        model_pk = PELTON.solve(head, PELTON_SPEED, 1.0, jets=k, rho=RHO, g=G).shaft_power
+        chart_pk = np.interp(head, chart.heads,
+                             chart.max_power_per_mode[k - 1] / chart.heads**1.5) * head**1.5
+        gap = chart_pk / model_pk - 1.0
+        # step 1: at the grid heads the chart's P_k is the model's at full stroke
+        assert np.all(np.abs(gap[on_grid]) < 1e-12), k
+        # step 2: between them it is low, never high: P_k / H^1.5 is concave in H here
+        # (measured -6.7e-5 for one jet, -5.0e-5 for five, at worst)
+        assert np.all(gap[~on_grid] < 0) and np.min(gap) > -7.5e-5, k
+        # step 3: just below the chart's P_k the chart runs k jets, the best count, near
+        # full stroke (measured 5.5e-5 against k jets solved directly)
+        below = chart_pk * (1.0 - 1e-6)
+        _, eta_k, _ = _pelton_direct(below, head, k)
+        assert np.array_equal(chart.mode_at_power(below, head), np.full(head.size, k))
+        assert np.max(np.abs(chart.efficiency_at_power(below, head) - eta_k)) < 1.0e-4
+        # step 4: in the gap the chart runs k + 1 jets and reads their efficiency (measured
+        # 8.6e-5 against k + 1 jets solved directly), while k jets would do better by the
+        # jump (measured 1.5e-3 for 5 -> 6 jets to 8.6e-3 for 1 -> 2)
+        inside = ~on_grid & (gap < -1e-8)
+        h_gap = head[inside]
+        mid = 0.5 * (chart_pk + model_pk)[inside]
+        _, eta_k, _ = _pelton_direct(mid, h_gap, k)
+        _, eta_next, _ = _pelton_direct(mid, h_gap, k + 1)
+        eta = chart.efficiency_at_power(mid, h_gap)
+        assert np.array_equal(chart.mode_at_power(mid, h_gap), np.full(h_gap.size, k + 1))
+        assert np.max(np.abs(eta - eta_next)) < 1.0e-4
+        assert np.all(eta_k - eta > 1.0e-3) and np.all(eta_k - eta < 1.0e-2)
+        # step 5: above the model's P_k, k + 1 jets are the best and the chart runs them
+        above = model_pk * (1.0 + 1e-6)
+        assert np.array_equal(chart.mode_at_power(above, head), np.full(head.size, k + 1))
+
+
+def test_pelton_lowest_loads_are_one_jet_on_its_own_grid(pelton_chart: HillChart) -> None:
+    # Below 4 % of the unit's P_max (the first load of the six-jet grid) only fewer jets
+    # reach, each on its own grid: down to 4 % of ONE jet's P_1, 0.66 % of P_max here.
+    # One jet at strokes of 4-30 %: the part-stroke loss makes the efficiency climb from
+    # 0.35 to 0.8 over these loads, and the 49-load grid cannot follow that curvature at
+    # the very bottom (measured over 20,000 states, seeds 1 and 2: 1.0e-2 at loads 0.7-1 %,
+    # 5.8e-3 at 1-2 %, 1.8e-3 at 2-3 %, 8.2e-4 at 3-5 %; the flow 1.8e-4): documented here,
+    # not hidden.
+    rng = np.random.default_rng(SEED)
+    head = rng.uniform(400.0, 600.0, 3000)
+    load = rng.uniform(0.007, 0.05, head.size)
+    power = load * _max_power_at(pelton_chart, head)
+    best_jets, best_eta, best_flow = _pelton_best(power, head)
+    eta = pelton_chart.efficiency_at_power(power, head)
+    assert np.all(best_jets == 1)
+    assert np.array_equal(pelton_chart.mode_at_power(power, head), best_jets)
+    error = np.abs(eta - best_eta)
+    for low, high, bound in ((0.007, 0.01, 1.2e-2), (0.01, 0.02, 7.0e-3),
+                             (0.02, 0.03, 2.5e-3), (0.03, 0.05, 1.0e-3)):
+        band = (load >= low) & (load < high)
+        assert band.sum() > 200 and np.max(error[band]) < bound, (low, np.max(error[band]))
+    flow = pelton_chart.flow_at_power(power, head)
+    assert np.max(np.abs(flow / best_flow - 1.0)) < 2.5e-4
+
+
+@pytest.mark.parametrize("which", ["francis", "pelton"])
+def test_lookups_are_bilinear_per_mode_and_take_the_best_mode(which: str,
+                                                             request: pytest.FixtureRequest
+                                                             ) -> None:
+    # Reference: scipy's RegularGridInterpolator (linear) on each mode's (head, load) table,
+    # with the load taken against that mode's P_max(H) (P_max / H^1.5 by np.interp), and
+    # the best mode picked state by state in plain Python: the highest finite efficiency,
+    # the fewest jets on a tie.
+    chart: HillChart = request.getfixturevalue(f"{which}_chart")
+    rng = np.random.default_rng(SEED)
+    head = rng.uniform(395.0, 605.0, 3000)
+    power = rng.uniform(-0.02, 1.02, head.size) * _max_power_at(chart, head)
+    flow = rng.uniform(-0.02, 1.02, head.size) * np.interp(head, chart.heads, chart.max_flow)
+    tables = {"eta": chart.eta_by_power_per_mode, "opening": chart.opening_by_power_per_mode,
+              "flow": chart.flow_by_power_per_mode, "eta_q": chart.eta_by_flow_per_mode}
+    per_mode = {name: [] for name in tables}
+    for k in range(chart.modes.size):
+        p_k = np.interp(head, chart.heads,
+                        chart.max_power_per_mode[k] / chart.heads**1.5) * head**1.5
+        q_k = np.interp(head, chart.heads,
+                        chart.max_flow_per_mode[k] / chart.heads**0.5) * head**0.5
+        for name, table in tables.items():
+            load = flow / q_k if name == "eta_q" else power / p_k
+            rgi = RegularGridInterpolator((chart.heads, chart.loads), table[k],
+                                          method="linear", bounds_error=False, fill_value=np.nan)
+            per_mode[name].append(rgi(np.column_stack([head, load])))
+    expected = {name: np.full(head.size, np.nan) for name in ("eta", "opening", "flow")}
+    expected_mode = np.full(head.size, -1)
+    expected_eta_q = np.full(head.size, np.nan)
+    for n in range(head.size):
+        etas = [float(v[n]) for v in per_mode["eta"]]
+        able = [k for k, v in enumerate(etas) if math.isfinite(v)]
+        if able:
+            k = max(able, key=lambda m: (etas[m], -m))
+            for name in expected:
+                expected[name][n] = per_mode[name][k][n]
+            expected_mode[n] = int(chart.modes[k])
+        by_flow = [float(v[n]) for v in per_mode["eta_q"] if math.isfinite(v[n])]
+        if by_flow:
+            expected_eta_q[n] = max(by_flow)
+    found = np.isfinite(expected["eta"])
+    assert 0.7 < found.mean() < 0.99  # some states are beyond the chart
+    for name, method in (("eta", chart.efficiency_at_power), ("opening", chart.opening_at_power),
+                         ("flow", chart.flow_at_power)):
+        np.testing.assert_allclose(method(power, head), expected[name], rtol=1e-12, atol=0)
+    np.testing.assert_array_equal(chart.mode_at_power(power, head), expected_mode)
+    np.testing.assert_allclose(chart.efficiency_at_flow(flow, head), expected_eta_q, rtol=1e-12)
+    if which == "pelton":
+        assert set(expected_mode[found].tolist()) == {1, 2, 3, 4, 5, 6}
 
 
 # ---------------------------------------------------------------- edges, NaN, vectorisation
@@ -185,6 +422,13 @@ def test_nan_outside_the_chart_and_for_nan_inputs(francis_chart: HillChart,
                                                   pelton_chart: HillChart) -> None:
     for chart in (francis_chart, pelton_chart):
         p_mid = 0.6 * chart.max_power[10]
+        # the lowest power is the first load of the smallest mode's own grid: for the Pelton,
+        # one jet (P_1 + P_mech = (P_6 + P_mech) / 6, test_pelton_envelope_over_jet_counts)
+        p_low = DEFAULT_LOADS[0] * chart.max_power_per_mode[:, 10].min()
+        if chart is pelton_chart:
+            assert p_low < DEFAULT_LOADS[0] * chart.max_power[10] / 6
+        else:
+            assert p_low == DEFAULT_LOADS[0] * chart.max_power[10]
         lookups = (chart.efficiency_at_power, chart.opening_at_power, chart.flow_at_power)
         for f in lookups:
             assert np.isfinite(f(p_mid, 500.0))
@@ -192,7 +436,8 @@ def test_nan_outside_the_chart_and_for_nan_inputs(francis_chart: HillChart,
             assert np.isnan(f(p_mid, 600.1))  # head above the chart
             assert np.isnan(f(1.001 * chart.max_power[10], HEADS[10]))  # above P_max
             assert np.isfinite(f(chart.max_power[10], HEADS[10]))  # P_max itself is inside
-            assert np.isnan(f(0.99 * DEFAULT_LOADS[0] * chart.max_power[10], HEADS[10]))
+            assert np.isnan(f(0.99 * p_low, HEADS[10]))
+            assert np.isfinite(f(1.01 * p_low, HEADS[10]))
             assert np.isnan(f(-1.0e6, 500.0))
             assert np.isnan(f(np.nan, 500.0))
             assert np.isnan(f(p_mid, np.nan))
@@ -226,12 +471,14 @@ def test_a_million_points_in_well_under_a_second_each(pelton_chart: HillChart) -
     head = rng.uniform(380.0, 620.0, 1_000_000)
     power = rng.uniform(-0.05, 1.1, head.size) * _max_power_at(pelton_chart, head)
     power[::1000] = np.nan
+    # six jet counts: each lookup reads all six tables and keeps the best per point
+    assert pelton_chart.modes.size == 6
     for f in (pelton_chart.efficiency_at_power, pelton_chart.opening_at_power,
               pelton_chart.flow_at_power, pelton_chart.mode_at_power):
         start = time.perf_counter()
         out = f(power, head)
         elapsed = time.perf_counter() - start
-        # measured 0.1-0.35 s per call here; 2 s leaves room for a slower CI machine
+        # measured 0.40-0.47 s per call here (2 cores); 2 s leaves room for a slower CI machine
         assert elapsed < 2.0, (f.__name__, elapsed)
         assert out.shape == head.shape
         missing = (out == -1) if out.dtype.kind == "i" else np.isnan(out)
@@ -239,7 +486,7 @@ def test_a_million_points_in_well_under_a_second_each(pelton_chart: HillChart) -
         assert 0.1 < missing.mean() < 0.4  # heads and loads beyond the chart are NaN
 
 
-# ---------------------------------------------------------------- Pelton: envelope over jets
+# ---------------------------------------------------------------- Pelton: best over jet counts
 
 def test_pelton_envelope_over_jet_counts(pelton_chart: HillChart) -> None:
     head = np.full(4, 500.0)
@@ -249,37 +496,57 @@ def test_pelton_envelope_over_jet_counts(pelton_chart: HillChart) -> None:
                                    rho=RHO, g=G) for k in MODES}
     envelope = pelton_chart.efficiency_at_power(power, head)
     assert np.isfinite(envelope).all()
+    # P_mech = windage + bearing, the shaft power at zero stroke with the sign turned
+    p_mech = -float(PELTON.solve(500.0, PELTON_SPEED, 0.0, rho=RHO, g=G).shaft_power)
+    direct = {k: _pelton_direct(power, head, k) for k in MODES}
     for k, chart in singles.items():
         single = chart.efficiency_at_power(power, head)
         reachable = np.isfinite(single)
-        assert np.all(envelope[reachable] >= single[reachable] - 1e-12), k
+        # the six-jet-count chart holds each count's own chart as one of its tables, so it
+        # is at least as good as each of them, exactly
+        assert chart.modes.tolist() == [k]
+        np.testing.assert_array_equal(pelton_chart.eta_by_power_per_mode[k - 1],
+                                      chart.eta_by_power_per_mode[0])
+        np.testing.assert_array_equal(pelton_chart.max_power_per_mode[k - 1], chart.max_power)
+        assert np.all(envelope[reachable] >= single[reachable]), k
         # the flow, and so P + P_mech, is proportional to the number of jets at full
-        # stroke (P_mech = windage + bearing, the shaft power at zero stroke with the sign
-        # turned)
-        p_mech = -float(PELTON.solve(500.0, PELTON_SPEED, 0.0, rho=RHO, g=G).shaft_power)
+        # stroke (no part-stroke loss there, so every jet runs at the same Cv)
         assert chart.max_power[10] + p_mech == pytest.approx(
             k / 6 * (pelton_chart.max_power[10] + p_mech), rel=1e-12)
         # a direct solve for that jet count, where it can deliver the power
-        direct = _pelton_direct(power, head, k)
-        assert np.array_equal(np.isfinite(direct), reachable)
-        error = np.abs(single - direct)
-        # measured 3.3e-3 at 6 % load (a single-mode chart resolves its own range only,
-        # steep there) and below 2e-5 above it
+        stroke, eta, _ = direct[k]
+        assert np.array_equal(np.isfinite(eta), reachable)
+        assert np.all((stroke[reachable] > 0) & (stroke[reachable] <= 1.0))
+        error = np.abs(single - eta)
+        # measured up to 2.2e-3 at 6 % load (5 jets at 9 % stroke: a single-mode chart
+        # resolves its own range only, and the part-stroke loss makes the curve steep there)
+        # and below 4e-5 above it
         assert error[0] < 4e-3 and np.all(error[1:][reachable[1:]] < 5e-5), (k, error)
-        # the envelope holds the best-resolved mode: measured 2.8e-5 from the direct value
-        assert np.all(np.abs(envelope - direct)[reachable] < 1e-4), k
-    # at low power fewer jets than at full power; full power needs all six
-    modes = pelton_chart.mode_at_power(power, head)
-    assert modes[-1] == 6
-    assert modes[0] < modes[-1]
+    etas = np.stack([direct[k][1] for k in MODES])
+    strokes = np.stack([direct[k][0] for k in MODES])
+    # the chart is the best of the single-count charts, and so of the direct per-jet-count
+    # values to interpolation (measured 9.9e-5 at 6 % load, one jet at 36 % of its own full
+    # power where its curve bends; 5.0e-6, 2.3e-6 and 0 at 30 %, 70 % and 100 %)
+    np.testing.assert_array_equal(envelope, np.nanmax(
+        np.stack([c.efficiency_at_power(power, head) for c in singles.values()]), axis=0))
+    best = np.nanmax(etas, axis=0)
+    assert abs(envelope[0] - best[0]) < 1.5e-4
+    assert np.all(np.abs(envelope[1:] - best[1:]) < 1e-5), envelope - best
+    # the best count is the fewest that can carry the power: from the proportionality
+    # above, k jets reach k/6 (P_max + P_mech) - P_mech. The chart's jet count is that one.
+    fewest = np.array([min(k for k in MODES if k / 6 * (p_max + p_mech) - p_mech >= p)
+                       for p in power])
+    assert fewest.tolist() == [1, 2, 5, 6]
+    assert np.array_equal(np.nanargmax(etas, axis=0) + 1, fewest)
+    assert np.array_equal(pelton_chart.mode_at_power(power, head), fewest)
     assert np.isnan(singles[5].efficiency_at_power(power[-1], 500.0))
-    # A finding about the model, not the chart: its efficiency at a given power is the same
-    # for every jet count (work per kg independent of stroke, mechanical losses fixed), so
-    # the chart's jet count at part load is decided by interpolation error (fewer jets
-    # resolve the power finer), not by physics. Shown here so that a model change which
-    # makes jet switching matter is noticed.
-    direct_all = np.array([_pelton_direct(power[:1], head[:1], k)[0] for k in MODES])
-    assert np.ptp(direct_all) < 1e-12
+    # fewer jets win at low load: at 6 % every count can carry the power, each added jet
+    # shrinks the stroke and grows the part-stroke loss (pelton.py), and the efficiency falls
+    # by 1.2-1.6 points per added jet (measured); the old model had them all equal
+    assert np.isfinite(etas[:, 0]).all()
+    assert np.all(np.diff(strokes[:, 0]) < 0)
+    assert np.all(np.diff(etas[:, 0]) < -0.01), np.diff(etas[:, 0])
+    assert envelope[0] > etas[1:, 0].max() + 0.01
 
 
 # ---------------------------------------------------------------- best-efficiency point
@@ -321,9 +588,11 @@ def test_bep_outside_the_chart_is_refused(francis_chart: HillChart) -> None:
 
 
 def test_pelton_bep_is_at_full_load(pelton_chart: HillChart) -> None:
-    # With a fixed head and speed the Pelton model's work per kg is fixed and its
-    # mechanical losses are constant, so efficiency rises with flow: the BEP is the last
-    # load of the chart.
+    # At a fixed head and speed the Pelton model's work per kg is largest at full stroke
+    # (the part-stroke loss vanishes there) and its mechanical losses are constant, so
+    # every jet count's efficiency rises with its stroke (pelton.py: no term makes a jet
+    # peak below full stroke) and all six jets at full stroke are the best: the BEP is the
+    # last load of the chart.
     bep = pelton_chart.best_efficiency_point(500.0)
     p_max = float(_max_power_at(pelton_chart, np.array([500.0]))[0])
     assert bep.power == pytest.approx(p_max, rel=1e-12)
@@ -341,12 +610,18 @@ def test_dict_and_json_round_trip_gives_identical_evaluations(which: str) -> Non
     else:
         chart = build_hill_chart(PELTON, heads=HEADS, speed=PELTON_SPEED, modes=MODES,
                                  loads=np.linspace(0.001, 1.0, 100), rho=RHO, g=G)
-    assert np.isnan(chart.eta_by_power).any()
+    assert np.isnan(chart.eta_by_power_per_mode).any()
     text = json.dumps(chart.to_dict(), allow_nan=False)  # NaN stored as null, valid JSON
+    assert chart.modes.size == (6 if which == "pelton" else 1)
     for again in (HillChart.from_dict(chart.to_dict()), HillChart.from_dict(json.loads(text))):
-        for name in ("heads", "loads", "max_power", "max_flow", "eta_by_power", "eta_by_flow",
+        for name in ("heads", "loads", "modes", "max_power_per_mode", "max_flow_per_mode",
+                     "eta_by_power_per_mode", "eta_by_flow_per_mode",
+                     "opening_by_power_per_mode", "flow_by_power_per_mode",
+                     # derived from the above
+                     "max_power", "max_flow", "eta_by_power", "eta_by_flow",
                      "opening_by_power", "flow_by_power", "mode_by_power"):
             np.testing.assert_array_equal(getattr(again, name), getattr(chart, name))
+        assert again.modes.dtype.kind == "i"
         assert (again.speed, again.rho, again.g) == (chart.speed, chart.rho, chart.g)
         assert again.meta == chart.meta
         rng = np.random.default_rng(SEED)

@@ -131,9 +131,11 @@ def design_reference_points(unit: UnitDesign) -> list[dict[str, float]]:
                       * head**1.5)
         target = np.array([min(load * rated_turbine, 0.98 * p_max)])
         if unit.runner_type == "pelton":
+            eta = float(chart.efficiency_at_power(target, h)[0])
+            # the flow from the power balance, so that P = rho g Q H eta holds exactly
             point = {"head": head, "power": float(target[0]),
-                     "flow": float(chart.flow_at_power(target, h)[0]),
-                     "efficiency": float(chart.efficiency_at_power(target, h)[0])}
+                     "flow": float(target[0] / (physics.rho * physics.g * head * eta)),
+                     "efficiency": eta}
         else:
             opening = chart.opening_at_power(target, h)
             sol = model.solve(h, physics.speed, opening, rho=physics.rho, g=physics.g)

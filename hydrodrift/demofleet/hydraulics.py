@@ -94,29 +94,13 @@ def operating_point(unit: UnitSpec, physics: DemoUnitPhysics, generator_power: A
     density = np.broadcast_to(np.asarray(rho, dtype=float), p_gen.shape)
     online = p_gen > 0.0
     chart = physics.chart
-    k_p = unit.penstock_loss_coefficient
     head = np.array(h_gross, dtype=float)
-    for _ in range(max_iterations):
-        eta_gen = np.where(online, generator_efficiency(unit, p_gen), np.nan)
-        p_turb = np.where(online, p_gen / np.where(online, eta_gen, 1.0), 0.0)
-        reduced = np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
-        limit = MAX_LOAD_OF_CHART * reduced * head**1.5
-        p_turb = np.minimum(p_turb, limit)
-        p_gen = np.where(online, p_turb * eta_gen, 0.0)
-        eta_ref = chart.efficiency_at_power(p_turb, head)
-        eta = eta_ref - loss
-        flow = np.where(online, p_turb / (density * g * head * eta), 0.0)
-        new_head = h_gross - k_p * flow**2
-        if np.max(np.abs(new_head - head), initial=0.0) < tolerance:
-            break
-        head = new_head
-    else:  # pragma: no cover - the iteration contracts by ~2 k_p Q^2 / H << 1
-        raise RuntimeError(f"net head of unit {unit.code} did not converge")
-    if np.isnan(eta_ref[online]).any():
-        raise RuntimeError(f"unit {unit.code}: operating points outside its hill chart")
+    effect = np.zeros(p_gen.shape)
+    head, p_gen, p_turb, eta_gen, eta_ref, eta, flow = _solve_head(
+        unit, chart, p_gen, online, h_gross, head, loss, effect, density, g, tolerance,
+        max_iterations)
     opening = np.where(online, chart.opening_at_power(p_turb, head), 0.0)
     jets = np.where(online, chart.mode_at_power(p_turb, head), 0)
-    effect = np.zeros(p_gen.shape)
     if blade_error is not None and online.any():
         error = np.broadcast_to(np.asarray(blade_error, dtype=float), p_gen.shape)
         on_h, on_y = head[online], opening[online]
@@ -126,8 +110,10 @@ def operating_point(unit: UnitSpec, physics: DemoUnitPhysics, generator_power: A
         off_cam = physics.model.solve(on_h, physics.speed, on_y, blade_angle=cam
                                       + error[online], rho=physics.rho, g=physics.g).efficiency
         effect[online] = np.nan_to_num(off_cam - on_cam)
-        eta = eta + effect
-        flow = np.where(online, p_turb / (density * g * head * eta), 0.0)
+        # the off-cam flow changes the penstock loss: solve the head again with the effect
+        head, p_gen, p_turb, eta_gen, eta_ref, eta, flow = _solve_head(
+            unit, chart, p_gen, online, h_gross, head, loss, effect, density, g, tolerance,
+            max_iterations)
     return OperatingPoint(
         online=online, generator_power=p_gen, turbine_power=p_turb, generator_efficiency=eta_gen,
         reference_efficiency=np.where(online, eta_ref, np.nan), degradation=np.array(loss),
@@ -135,6 +121,32 @@ def operating_point(unit: UnitSpec, physics: DemoUnitPhysics, generator_power: A
         gross_head=np.array(h_gross), net_head=head, opening=opening, jets=jets,
         rho=np.array(density), g=g, off_cam_effect=effect,
     )
+
+
+def _solve_head(unit: UnitSpec, chart, p_gen: NDArray, online: NDArray, h_gross: NDArray,
+                head: NDArray, loss: NDArray, effect: NDArray, density: NDArray, g: float,
+                tolerance: float, max_iterations: int) -> tuple[NDArray, ...]:
+    """Fixed point ``H = H_gross - k_p Q^2`` with ``Q = P / (rho g H eta(P, H))``."""
+    k_p = unit.penstock_loss_coefficient
+    for _ in range(max_iterations):
+        eta_gen = np.where(online, generator_efficiency(unit, p_gen), np.nan)
+        p_turb = np.where(online, p_gen / np.where(online, eta_gen, 1.0), 0.0)
+        reduced = np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
+        limit = MAX_LOAD_OF_CHART * reduced * head**1.5
+        p_turb = np.minimum(p_turb, limit)
+        p_gen = np.where(online, p_turb * eta_gen, 0.0)
+        eta_ref = chart.efficiency_at_power(p_turb, head)
+        eta = eta_ref + effect - loss
+        flow = np.where(online, p_turb / (density * g * head * eta), 0.0)
+        new_head = h_gross - k_p * flow**2
+        if np.max(np.abs(new_head - head), initial=0.0) < tolerance:
+            break
+        head = new_head
+    else:  # pragma: no cover - the iteration contracts by ~2 k_p Q^2 / H << 1
+        raise RuntimeError(f"net head of unit {unit.code} did not converge")
+    if np.isnan(eta_ref[online]).any():
+        raise RuntimeError(f"unit {unit.code}: operating points outside its hill chart")
+    return head, p_gen, p_turb, eta_gen, eta_ref, eta, flow
 
 
 def wk_differential_pressure(unit: UnitSpec, flow: ArrayLike) -> NDArray:
