@@ -312,6 +312,11 @@ class UnitSpec(_Strict):
     penstock_loss_coefficient: float = Field(
         default=0.0, ge=0, description="[s2/m5] head loss k_p*Q^2 from headwater to inlet"
     )
+    outlet_section_area: Area | None = Field(
+        default=None, gt=0,
+        description="[m2] low-pressure reference section (draft-tube outlet); when given, its "
+        "velocity head is taken off the net head (IEC 60041 definition of E)",
+    )
     winter_kennedy_exponent: float = Field(default=0.5, ge=0.3, le=0.7)
     winter_kennedy_coefficient: float | None = Field(
         default=None, gt=0, description="[m3/s per Pa^n] k in Q = k*dp^n, if calibrated"

@@ -10,6 +10,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from analytics.cam import CamCheck, cam_check
+from analytics.runners.base import G_DEFAULT, RHO_DEFAULT
 from analytics.runners.kaplan import KaplanGeometry
 from ingest.plant_file import UnitSpec
 from jobs.reference import runner_model
@@ -40,7 +41,8 @@ def unit_cam_check(session: Session, plant_code: str, unit_code: str, *,
     if spec.runner_type != "kaplan" or spec.geometry is None or not spec.geometry.cam:
         raise CamReviewError(f"{plant_code}/{unit_code} is not a Kaplan unit with an installed "
                              "cam in its plant file")
-    model = runner_model(spec, rho=1000.0, g=9.81)  # only its geometry's cam is used here
+    # only the model's geometry (its installed cam) is used here
+    model = runner_model(spec, rho=RHO_DEFAULT, g=G_DEFAULT)
     geometry: KaplanGeometry = model.geometry  # type: ignore[attr-defined]
     query = select(EfficiencyWindow.opening, EfficiencyWindow.net_head,
                    EfficiencyWindow.blade_angle, EfficiencyWindow.eta_index,

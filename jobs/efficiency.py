@@ -5,8 +5,9 @@ The glue between the store's frames and the pure functions of :mod:`analytics`:
 * steadiness on the samples (:func:`analytics.steady.steady_windows`), judged on generator
   power, gross head, opening and speed;
 * per steady window, from the window means: flow (flow meter, or the Winter-Kennedy index
-  ``k dp^n``), net head (levels minus the penstock loss ``k_p Q^2``; for a Pelton the low
-  reference is the jet-circle plane), water density at the window's water temperature and
+  ``k dp^n``), net head (levels minus the penstock loss ``k_p Q^2`` and, where the plant file
+  gives the low-pressure section's area, its velocity head; for a Pelton the low reference
+  is the jet-circle plane), water density at the window's water temperature and
   the mean pressure of the two reference sections (IAPWS-IF97), generator efficiency,
   index efficiency, and the reference efficiency at the same turbine power and net head
   from the unit's hill chart;
@@ -40,6 +41,10 @@ from ingest.plant_file import UnitSpec
 #: Water temperature assumed where a unit has no water-temperature signal [K] (10 degC);
 #: 10 K of error moves the density by ~0.1 %, a constant offset the index constant absorbs.
 DEFAULT_WATER_TEMPERATURE = 283.15
+
+#: Density used only to estimate the section pressures at which the density is evaluated
+#: [kg/m3]; 0.1 % off there moves the IAPWS-IF97 density by ~5e-8.
+HYDROSTATIC_DENSITY = 1000.0
 
 #: Nominal sample interval used when a batch is too short to infer one [s].
 FALLBACK_SAMPLE_INTERVAL = 600.0
@@ -200,13 +205,14 @@ def window_efficiency(frame: pd.DataFrame, *, spec: UnitSpec, plant_elevation: f
         loss_flow = flow if k is not None else chart.flow_at_power(p_turb, gross)
     head = np.asarray(net_head(gross, 0.0, flow=np.nan_to_num(loss_flow),
                                penstock_loss_coefficient=spec.penstock_loss_coefficient,
-                               g=gravity), dtype=float)
+                               outlet_area=spec.outlet_section_area, g=gravity), dtype=float)
     temperature = f["mean_water_temperature"].to_numpy(dtype=float)
     temperature = np.where(np.isfinite(temperature), temperature, DEFAULT_WATER_TEMPERATURE)
     # density at the mean absolute pressure of the high- and low-pressure sections
-    pressure = atmospheric_pressure(plant_elevation) + 0.5 * 1000.0 * gravity * head
+    pressure = (atmospheric_pressure(plant_elevation)
+                + 0.5 * HYDROSTATIC_DENSITY * gravity * head)
     rho = np.asarray(density(temperature, np.where(np.isfinite(pressure), pressure,
-                                                   101_325.0)), dtype=float)
+                                                   atmospheric_pressure(0.0))), dtype=float)
     eta_raw = np.asarray(index_efficiency(p_gen, eta_gen, flow, head, rho, gravity), dtype=float)
     eta_ref = chart.efficiency_at_power(p_turb, head)
     f["net_head"] = np.where(steady, head, nan)

@@ -30,6 +30,7 @@ from analytics.calibration import CalibrationError, CalibrationResult, Reference
 from analytics.hillchart import HillChart, build_hill_chart
 from analytics.runners import francis, kaplan, pelton
 from analytics.runners.base import RunnerModel
+from analytics.site import atmospheric_pressure
 from analytics.water import density
 from hydrodrift import __version__
 from ingest.plant_file import Geometry, UnitSpec
@@ -182,7 +183,7 @@ def calibrate_unit(spec: UnitSpec, *, g: float) -> tuple[CalibrationResult, Hill
 
 
 def _calibrate_unit(spec: UnitSpec, *, g: float) -> tuple[CalibrationResult, HillChart]:
-    rho = float(density(REFERENCE_WATER_TEMPERATURE, 101_325.0))
+    rho = float(density(REFERENCE_WATER_TEMPERATURE, atmospheric_pressure(0.0)))
     model = runner_model(spec, rho=rho, g=g)
     data = reference_data(spec)
     modes = jet_modes(spec)
