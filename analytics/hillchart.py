@@ -54,6 +54,10 @@ _STORED = ("max_power_per_mode", "max_flow_per_mode", "eta_by_power_per_mode",
            "eta_by_flow_per_mode", "opening_by_power_per_mode", "flow_by_power_per_mode")
 
 
+#: Layout of :meth:`HillChart.to_dict`; bumped whenever the stored form changes.
+CHART_LAYOUT = 2
+
+
 @dataclass(frozen=True)
 class BestEfficiencyPoint:
     """The best-efficiency point at one head. Units: m, W, m3/s, fraction."""
@@ -326,12 +330,22 @@ class HillChart:
             values = np.asarray(getattr(self, name), dtype=float).astype(object).tolist()
             out[name] = _nan_to_none(values)
         out["modes"] = np.asarray(self.modes, dtype=int).tolist()
-        out.update(speed=self.speed, rho=self.rho, g=self.g, meta=self.meta)
+        out.update(speed=self.speed, rho=self.rho, g=self.g, meta=self.meta,
+                   layout=CHART_LAYOUT)
         return out
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> HillChart:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Raises
+        ------
+        ValueError when ``data`` was written in another layout (by another code version).
+        """
+        if data.get("layout") != CHART_LAYOUT:
+            raise ValueError(f"stored hill chart has layout {data.get('layout')!r}, this code "
+                             f"reads layout {CHART_LAYOUT}: rebuild the reference (a new "
+                             "reference version) with this code version")
         arrays = {name: np.array(_none_to_nan(data[name]), dtype=float)
                   for name in ("heads", "loads", *_STORED)}
         return cls(**arrays, modes=np.array(data["modes"], dtype=int),

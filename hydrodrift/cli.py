@@ -559,6 +559,30 @@ def cam_cmd(
                    "test. " + SAFETY_NOTE, style="italic"))
 
 
+@app.command("plot")
+def plot_cmd(
+    plant: Annotated[str, typer.Argument(help="Plant code.")],
+    unit: Annotated[str, typer.Argument(help="Unit code.")],
+    output: Annotated[Path | None, typer.Option("--output", "-o", help="PNG or PDF file; "
+                                                "default <data_dir>/plots/PLANT_UNIT.png")
+                      ] = None,
+) -> None:
+    """Draw a unit's weekly drift and its reference curve with recent steady windows."""
+    from hydrodrift.plots import PlotError, unit_drift_figure
+    from store.engine import session_scope
+
+    settings = get_settings()
+    engine = _engine(settings)
+    target = output or settings.data_dir / "plots" / f"{plant}_{unit}.png"
+    try:
+        with session_scope(engine) as session:
+            written = unit_drift_figure(session, plant, unit, target)
+    except PlotError as exc:
+        err.print(f"error: {exc}")
+        raise typer.Exit(1) from None
+    out.print(f"wrote {written}")
+
+
 def main(argv: Sequence[str] | None = None) -> None:
     """Entry point of the ``hydrodrift`` console script."""
     try:

@@ -215,3 +215,18 @@ def test_unit_without_geometry_is_refused_and_its_files_stay_pending(
     assert summary.files == 0
     with session_scope(engine) as session:
         assert len(pending_files(session)) == len(glf)
+
+
+def test_drift_figure_is_drawn(engine: Engine, demo_root: Path, tmp_path: Path) -> None:
+    from hydrodrift.plots import PlotError, unit_drift_figure
+
+    settings = _settings(tmp_path)
+    _load(engine, demo_root, settings, _exports(demo_root))
+    compute(engine, settings)
+    with session_scope(engine) as session:
+        png = unit_drift_figure(session, "LBD", "U3", tmp_path / "u3.png")
+        pdf = unit_drift_figure(session, "GLF", "MG3", tmp_path / "mg3.pdf")
+        with pytest.raises(PlotError, match="no unit GLF/MG9"):
+            unit_drift_figure(session, "GLF", "MG9", tmp_path / "x.png")
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
+    assert pdf.read_bytes()[:5] == b"%PDF-"
