@@ -19,8 +19,10 @@ REPORT_COLUMNS: dict[str, str] = {
     "plant": "", "unit": "", "runner": "", "week": "ISO week, plant time",
     "steady_hours": "h", "deviation_pt": "points", "deviation_low_pt": "points",
     "deviation_high_pt": "points", "trend_pt_per_year": "points/year",
-    "change_point_week": "", "change_point_pt": "points", "generated_mwh": "MWh",
-    "lost_mwh": "MWh", "lost_mwh_low": "MWh", "lost_mwh_high": "MWh", "lost_money": "",
+    "change_point_week": "ISO week the new level starts, known at the row's week end",
+    "change_point_pt": "points", "generated_mwh": "MWh",
+    "lost_mwh": "MWh", "lost_mwh_low": "MWh", "lost_mwh_high": "MWh",
+    "lost_money": "the row's currency",
     "cumulative_lost_mwh": "MWh", "currency": "", "reference_version": "",
 }
 
