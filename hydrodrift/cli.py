@@ -32,9 +32,14 @@ app = typer.Typer(add_completion=False, no_args_is_help=True,
 db_app = typer.Typer(no_args_is_help=True, help="Database schema.")
 plant_app = typer.Typer(no_args_is_help=True, help="The plant registry.")
 files_app = typer.Typer(no_args_is_help=True, help="Ingested and quarantined files.")
+alerts_app = typer.Typer(invoke_without_command=True,
+                         help="Alert episodes: list the open ones, acknowledge, resolve.")
+detector_app = typer.Typer(no_args_is_help=True, help="Anomaly detectors per unit.")
 app.add_typer(db_app, name="db")
 app.add_typer(plant_app, name="plant")
 app.add_typer(files_app, name="files")
+app.add_typer(alerts_app, name="alerts")
+app.add_typer(detector_app, name="detector")
 
 # Piped or redirected output is not folded to 80 columns: tables stay one row per file.
 out = Console(width=None if sys.stdout.isatty() else 160)
@@ -399,6 +404,9 @@ def demo(
     with session_scope(engine) as session:
         week, frame = weekly_report(session)
     out.print(report_table(week, frame))
+    with session_scope(engine) as session:
+        open_rows = _episodes(session, include_closed=False)
+        out.print(alerts_table(open_rows) if open_rows else "no open alert episodes")
     out.print("The demo's ground truth (truth.json): LBD U3 loses 1.5 points a year, GLF MG2 "
               "lost 2.0 points on 2026-06-01; every other unit is healthy. "
               "`hydrodrift report --week 2026-W30` shows another week.")
@@ -581,6 +589,193 @@ def plot_cmd(
         err.print(f"error: {exc}")
         raise typer.Exit(1) from None
     out.print(f"wrote {written}")
+
+
+def alerts_table(rows: list) -> Table:
+    """Alert episodes as a rich table."""
+    table = Table(title="Alert episodes", title_justify="left")
+    for name in ("id", "plant", "unit", "signature", "severity", "status", "opened (UTC)",
+                 "last window (UTC)", "flagged h", "acknowledged"):
+        table.add_column(name, justify="right" if name in ("id", "flagged h") else "left")
+    for episode, plant, unit in rows:
+        ack = (f"{episode.acknowledged_by} {episode.acknowledged_at:%Y-%m-%d %H:%M}"
+               if episode.acknowledged_by else "-")
+        table.add_row(str(episode.id), plant, unit, episode.signature, episode.severity,
+                      episode.status, f"{episode.opened_at:%Y-%m-%d %H:%M}",
+                      f"{episode.last_window:%Y-%m-%d %H:%M}",
+                      f"{(episode.summary or {}).get('flagged_hours', 0):.1f}", ack)
+    return table
+
+
+def _episodes(session, include_closed: bool) -> list:
+    from store.models import AlertEpisode, Plant, Unit
+
+    query = (select(AlertEpisode, Plant.code, Unit.code)
+             .join(Unit, Unit.id == AlertEpisode.unit_id).join(Plant, Plant.id == Unit.plant_id)
+             .order_by(AlertEpisode.opened_at.desc()))
+    if not include_closed:
+        query = query.where(AlertEpisode.status.in_(("open", "acknowledged")))
+    return list(session.execute(query).all())
+
+
+@alerts_app.callback()
+def alerts_list(
+    ctx: typer.Context,
+    all_: Annotated[bool, typer.Option("--all", help="Also closed and resolved ones.")] = False,
+) -> None:
+    """List the open alert episodes (newest first)."""
+    if ctx.invoked_subcommand is not None:
+        return
+    from store.engine import session_scope
+
+    settings = get_settings()
+    engine = _engine(settings)
+    with session_scope(engine) as session:
+        rows = _episodes(session, all_)
+        if not rows:
+            out.print("no open alert episodes" if not all_ else "no alert episodes")
+        else:
+            out.print(alerts_table(rows))
+    out.print(Text("Signatures call for inspection by qualified staff. " + SAFETY_NOTE,
+                   style="italic"))
+
+
+def _set_status(episode_id: int, action: str, who: str, note: str | None) -> None:
+    from jobs.episodes import set_status
+    from store.engine import session_scope
+
+    settings = get_settings()
+    engine = _engine(settings)
+    try:
+        with session_scope(engine) as session:
+            episode = set_status(session, settings, episode_id, action=action, who=who,
+                                 note=note)
+            out.print(f"episode {episode.id}: {episode.status} by {who}")
+    except (KeyError, ValueError) as exc:
+        err.print(f"error: {exc.args[0]}")
+        raise typer.Exit(1) from None
+
+
+@alerts_app.command("ack")
+def alerts_ack(
+    episode_id: Annotated[int, typer.Argument(help="Episode id from `hydrodrift alerts`.")],
+    by: Annotated[str, typer.Option(help="Who acknowledges.")],
+    note: Annotated[str | None, typer.Option(help="A note kept with the episode.")] = None,
+) -> None:
+    """Acknowledge an episode (recorded with who and when; receivers are told)."""
+    _set_status(episode_id, "ack", by, note)
+
+
+@alerts_app.command("resolve")
+def alerts_resolve(
+    episode_id: Annotated[int, typer.Argument(help="Episode id from `hydrodrift alerts`.")],
+    by: Annotated[str, typer.Option(help="Who resolves.")],
+    note: Annotated[str | None, typer.Option(help="What was found or done.")] = None,
+) -> None:
+    """Resolve an episode (recorded with who and when; receivers are told)."""
+    _set_status(episode_id, "resolve", by, note)
+
+
+@app.command("dispatch")
+def dispatch_cmd(
+    once: Annotated[bool, typer.Option("--once", help="Deliver what is due, then stop.")
+                    ] = False,
+) -> None:
+    """Deliver alert messages from the outbox (webhooks, MQTT), retrying with backoff."""
+    import signal
+    import threading
+
+    from jobs.outbox import dispatch_forever, dispatch_once
+
+    settings = get_settings()
+    engine = _engine(settings)
+    if once:
+        out.print(str(dispatch_once(engine, settings)))
+        return
+    stop = threading.Event()
+    signal.signal(signal.SIGTERM, lambda *_: stop.set())
+    err.print("dispatching (Ctrl-C or SIGTERM stops) ...")
+    try:
+        dispatch_forever(engine, settings, stop=stop)
+    except KeyboardInterrupt:
+        stop.set()
+
+
+@alerts_app.command("dead")
+def alerts_dead() -> None:
+    """List dead letters: messages that could not be delivered after every attempt."""
+    from jobs.outbox import dead_letters
+    from store.engine import session_scope
+
+    settings = get_settings()
+    engine = _engine(settings)
+    with session_scope(engine) as session:
+        rows = dead_letters(session)
+        table = Table(title="Dead letters", title_justify="left")
+        for name in ("id", "event", "channel", "target", "attempts", "last error"):
+            table.add_column(name)
+        for m in rows:
+            table.add_row(str(m.id), m.event, m.channel, m.target, str(m.attempts),
+                          (m.last_error or "")[:80])
+        out.print(table if rows else "no dead letters")
+
+
+@alerts_app.command("resend")
+def alerts_resend(message_id: Annotated[int, typer.Argument(help="Dead letter id.")]) -> None:
+    """Send a dead letter again (same idempotency key)."""
+    from jobs.outbox import resend
+    from store.engine import session_scope
+
+    settings = get_settings()
+    engine = _engine(settings)
+    try:
+        with session_scope(engine) as session:
+            message = resend(session, message_id)
+            out.print(f"message {message.id}: pending again ({message.target})")
+    except (KeyError, ValueError) as exc:
+        err.print(f"error: {exc.args[0] if exc.args else exc}")
+        raise typer.Exit(1) from None
+
+
+@detector_app.command("train")
+def detector_train(
+    plant: Annotated[str, typer.Argument(help="Plant code.")],
+    unit: Annotated[str, typer.Argument(help="Unit code.")],
+    since: Annotated[str, typer.Option("--from", help="Baseline start, YYYY-MM-DD (UTC).")],
+    until: Annotated[str, typer.Option("--to", help="Baseline end (exclusive), YYYY-MM-DD.")],
+) -> None:
+    """Train a new detector version on a declared healthy period; past scores stay."""
+    from datetime import UTC, datetime
+
+    from jobs.detect import DetectorError, reconcile_unit, score_windows, train_detector
+    from store.engine import session_scope
+    from store.models import Plant, Unit
+
+    try:
+        start = datetime.strptime(since, "%Y-%m-%d").replace(tzinfo=UTC)
+        end = datetime.strptime(until, "%Y-%m-%d").replace(tzinfo=UTC)
+    except ValueError:
+        err.print("error: --from/--to: expected YYYY-MM-DD")
+        raise typer.Exit(2) from None
+    settings = get_settings()
+    engine = _engine(settings)
+    try:
+        with session_scope(engine) as session:
+            row = session.execute(select(Plant, Unit).join(Unit).where(
+                Plant.code == plant, Unit.code == unit)).first()
+            if row is None:
+                raise DetectorError(f"no unit {plant}/{unit} in the store")
+            p, u = row
+            model = train_detector(session, p, u, since=start, until=end)
+            scored = score_windows(session, p, u, model, since=start)
+            reconcile_unit(session, settings, p, u, model)
+            out.print(f"{plant}/{unit}: detector v{model.version} trained on "
+                      f"{model.n_windows:,} windows ({since} .. {until}); "
+                      f"{int(scored['flagged'].sum()) if len(scored) else 0:,} of "
+                      f"{len(scored):,} windows flagged since {since}")
+    except DetectorError as exc:
+        err.print(f"error: {exc}")
+        raise typer.Exit(1) from None
 
 
 def main(argv: Sequence[str] | None = None) -> None:

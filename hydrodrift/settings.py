@@ -81,6 +81,37 @@ class Settings(BaseSettings):
     confidence: float = Field(
         default=0.90, gt=0.5, lt=1.0, description="Weekly drift: level of the intervals."
     )
+    episode_open_windows: int = Field(
+        default=3, ge=1, description="Alerts: flagged windows of one signature that open an "
+        "episode."
+    )
+    episode_quiet_hours: float = Field(
+        default=6.0, gt=0.0, description="Alerts: an episode closes after this long without "
+        "a flagged window of its signature (hysteresis)."
+    )
+    webhook_urls: list[str] = Field(
+        default_factory=list, description="Alerts: webhook receivers (JSON list in the env)."
+    )
+    webhook_secret: str | None = Field(
+        default=None, description="Alerts: HMAC-SHA256 key of the webhook signature header."
+    )
+    delivery_max_attempts: int = Field(
+        default=8, ge=1, description="Alerts: attempts before a message is a dead letter."
+    )
+    delivery_backoff_s: float = Field(
+        default=2.0, gt=0.0, description="Alerts: first retry delay, doubled per attempt "
+        "(with jitter)."
+    )
+    delivery_backoff_max_s: float = Field(
+        default=900.0, gt=0.0, description="Alerts: longest retry delay."
+    )
+    delivery_timeout_s: float = Field(
+        default=10.0, gt=0.0, description="Alerts: timeout of one delivery attempt."
+    )
+    mqtt_host: str | None = Field(default=None, description="Alerts: MQTT broker host.")
+    mqtt_port: int = Field(default=1883, ge=1, le=65535)
+    mqtt_topic: str = Field(default="hydrodrift/alerts",
+                            description="Alerts: MQTT topic prefix (…/PLANT/UNIT).")
 
     @field_validator("data_dir")
     @classmethod

@@ -326,6 +326,11 @@ class UnitSpec(_Strict):
     )
     geometry: Geometry | None = None
     reference_points: tuple[ReferencePoint, ...] = Field(default=(), max_length=10_000)
+    sigma_curve: tuple[tuple[float, float], ...] = Field(
+        default=(),
+        description="critical Thoma sigma against load, as (turbine power / rated, sigma_c) "
+        "rows from the model test; empty: a published correlation against specific speed",
+    )
     steady: SteadyOverrides | None = Field(
         default=None, description="steady-window tolerances of this unit (defaults if absent)"
     )

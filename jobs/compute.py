@@ -37,6 +37,7 @@ from analytics.site import local_gravity
 from hydrodrift import __version__
 from hydrodrift.settings import Settings
 from ingest.plant_file import UnitSpec
+from jobs.detect import detect_unit
 from jobs.efficiency import WindowResults, unit_tolerances, unit_windows
 from jobs.reference import UnitReferenceError, ensure_reference, reference_chart
 from jobs.unit_samples import read_unit_samples
@@ -67,6 +68,9 @@ class ComputeSummary:
     references_created: list[str] = field(default_factory=list)
     constants_set: list[str] = field(default_factory=list)
     problems: list[str] = field(default_factory=list)
+    detectors_trained: list[str] = field(default_factory=list)
+    flagged: int = 0
+    alert_events: int = 0
     seconds: float = 0.0
 
     def line(self) -> str:
@@ -80,6 +84,11 @@ class ComputeSummary:
             parts.append(f"new references: {', '.join(self.references_created)}")
         if self.constants_set:
             parts.append(f"index constants set: {', '.join(self.constants_set)}")
+        if self.detectors_trained:
+            parts.append(f"detectors trained: {', '.join(self.detectors_trained)}")
+        if self.flagged or self.alert_events:
+            parts.append(f"{self.flagged:,} flagged window(s), {self.alert_events} alert "
+                         "event(s)")
         if self.problems:
             parts.append(f"{len(self.problems)} unit(s) skipped, their files stay pending")
         parts.append(f"{self.seconds:.1f} s")
@@ -190,6 +199,11 @@ def _compute_unit(session: Session, settings: Settings, plant: Plant, unit: Unit
         changed_from = first if changed_from is None else min(changed_from, first)
     if changed_from is not None:
         summary.weeks += refresh_weeks(session, settings, plant, unit, changed_from)
+        counts = detect_unit(session, settings, plant, unit, changed_from)
+        if counts["trained"]:
+            summary.detectors_trained.append(f"{plant.code}/{unit.code}")
+        summary.flagged += counts["flagged"]
+        summary.alert_events += counts["events"]
 
 
 def _window_range(session: Session, plant: Plant, unit: Unit, spec: UnitSpec,

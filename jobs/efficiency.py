@@ -23,6 +23,12 @@ from datetime import UTC, datetime
 import numpy as np
 import pandas as pd
 
+from analytics.cavitation import (
+    critical_sigma_correlation,
+    critical_sigma_from_curve,
+    plant_sigma,
+    sigma_margin,
+)
 from analytics.hillchart import HillChart
 from analytics.index_test import (
     deviation,
@@ -33,10 +39,12 @@ from analytics.index_test import (
     turbine_power,
     winter_kennedy_flow,
 )
+from analytics.similarity import specific_speed_nq
 from analytics.site import atmospheric_pressure
 from analytics.steady import SteadyTolerances, steady_windows
 from analytics.water import density
 from ingest.plant_file import UnitSpec
+from jobs.unit_samples import CONDITION_SIGNALS
 
 #: Water temperature assumed where a unit has no water-temperature signal [K] (10 degC);
 #: 10 K of error moves the density by ~0.1 %, a constant offset the index constant absorbs.
@@ -95,6 +103,9 @@ class WindowResults:
             "generator_efficiency": "eta_gen", "eta_index_raw": "eta_raw",
             "eta_index": "eta_index", "eta_reference": "eta_ref", "deviation": "deviation",
             "relative_loss": "relative_loss",
+            "tailwater_level": "mean_tailwater_level",
+            **{name: f"mean_{name}" for name in CONDITION_SIGNALS},
+            "sigma_plant": "sigma_plant", "sigma_margin": "sigma_margin",
         }
         values = {k: _none_nan(f[v].to_numpy(dtype=float)) if v in f else [None] * len(f)
                   for k, v in cols.items()}
@@ -162,7 +173,11 @@ def unit_windows(samples: pd.DataFrame, *, spec: UnitSpec, plant_elevation: floa
         "flow_rate": samples["flow_rate"].to_numpy(dtype=float),
         "water_temperature": samples["water_temperature"].to_numpy(dtype=float),
         "blade_angle": samples["blade_angle"].to_numpy(dtype=float),
+        "tailwater_level": samples["tailwater_level"].to_numpy(dtype=float),
     }
+    for name in CONDITION_SIGNALS:
+        if name in samples:
+            signals[name] = samples[name].to_numpy(dtype=float)
     for name in [n for n in signals if n not in ("power", "head")]:
         if np.isnan(signals[name]).all():
             # not exported for this unit: nothing to average, and for opening and speed no
@@ -214,6 +229,9 @@ def window_efficiency(frame: pd.DataFrame, *, spec: UnitSpec, plant_elevation: f
     rho = np.asarray(density(temperature, np.where(np.isfinite(pressure), pressure,
                                                    atmospheric_pressure(0.0))), dtype=float)
     eta_raw = np.asarray(index_efficiency(p_gen, eta_gen, flow, head, rho, gravity), dtype=float)
+    f["sigma_plant"], f["sigma_margin"] = window_sigma(
+        f, spec=spec, chart=chart, head=head, rho=rho, gravity=gravity,
+        plant_elevation=plant_elevation, turbine_power=p_turb)
     eta_ref = chart.efficiency_at_power(p_turb, head)
     f["net_head"] = np.where(steady, head, nan)
     f["flow"] = np.where(steady, flow, nan)
@@ -232,3 +250,33 @@ def window_efficiency(frame: pd.DataFrame, *, spec: UnitSpec, plant_elevation: f
         f["deviation"] = nan
         f["relative_loss"] = nan
     return f
+
+
+def window_sigma(f: pd.DataFrame, *, spec: UnitSpec, chart: HillChart, head: np.ndarray,
+                 rho: np.ndarray, gravity: float, plant_elevation: float,
+                 turbine_power: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Plant Thoma sigma and its margin (ratio sigma_p / sigma_c) per window.
+
+    sigma_c comes from the unit's ``sigma_curve`` against load when the plant file gives
+    one, else from the published correlation against the specific speed n_q of the
+    reference's best-efficiency point (:func:`analytics.cavitation.critical_sigma_correlation`).
+    Pelton runners have no Thoma number (NaN): they run above the tailwater in air.
+    """
+    nan = np.full(len(f), np.nan)
+    if spec.runner_type == "pelton" or "mean_tailwater_level" not in f:
+        return nan, nan
+    temperature = f["mean_water_temperature"].to_numpy(dtype=float)
+    temperature = np.where(np.isfinite(temperature), temperature, DEFAULT_WATER_TEMPERATURE)
+    sigma_p = np.asarray(plant_sigma(head, f["mean_tailwater_level"].to_numpy(dtype=float),
+                                     spec.runner_reference_elevation, temperature,
+                                     plant_elevation, rho=rho, g=gravity), dtype=float)
+    if spec.sigma_curve:
+        curve = np.array(spec.sigma_curve, dtype=float)
+        sigma_c = np.asarray(critical_sigma_from_curve(turbine_power / spec.rated_power,
+                                                       curve[:, 0], curve[:, 1]), dtype=float)
+    else:
+        bep = chart.best_efficiency_point(float(np.clip(spec.rated_head, chart.heads[0],
+                                                        chart.heads[-1])))
+        nq = float(specific_speed_nq(spec.rated_speed, bep.flow, bep.head))
+        sigma_c = np.full(len(f), float(critical_sigma_correlation(nq, spec.runner_type)))
+    return sigma_p, np.asarray(sigma_margin(sigma_p, sigma_c), dtype=float)

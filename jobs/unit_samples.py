@@ -15,7 +15,14 @@ from store.signals import SIGNAL_BIT
 COMPUTE_SIGNALS: tuple[str, ...] = (
     "active_power", "headwater_level", "tailwater_level", "wk_differential_pressure",
     "flow_rate", "gate_opening", "blade_angle", "rotational_speed", "water_temperature",
+    # condition signals, averaged per window for the signatures and the detector
+    "draft_tube_pressure", "draft_tube_pulsation", "shaft_vibration", "bearing_vibration",
+    "hf_vibration", "guide_bearing_temperature", "thrust_bearing_temperature",
+    "cooling_water_temperature",
 )
+
+#: Condition signals kept as window means (same names in efficiency_windows).
+CONDITION_SIGNALS: tuple[str, ...] = COMPUTE_SIGNALS[9:]
 
 
 def read_unit_samples(conn: Connection, unit_id: int, start: datetime, end: datetime,

@@ -17,6 +17,7 @@ from sqlalchemy import (
     Float,
     ForeignKey,
     Integer,
+    LargeBinary,
     String,
     Text,
     UniqueConstraint,
@@ -251,6 +252,18 @@ class EfficiencyWindow(Base):
     relative_loss: Mapped[float | None] = mapped_column(Float, nullable=True)
     reference_model_id: Mapped[int | None] = mapped_column(Integer, nullable=True)
     code_version: Mapped[str] = mapped_column(String(40))
+    # condition signals, window means in SI (issue 4): for signatures and the detector
+    tailwater_level: Mapped[float | None] = mapped_column(Float, nullable=True)
+    draft_tube_pressure: Mapped[float | None] = mapped_column(Float, nullable=True)
+    draft_tube_pulsation: Mapped[float | None] = mapped_column(Float, nullable=True)
+    shaft_vibration: Mapped[float | None] = mapped_column(Float, nullable=True)
+    bearing_vibration: Mapped[float | None] = mapped_column(Float, nullable=True)
+    hf_vibration: Mapped[float | None] = mapped_column(Float, nullable=True)
+    guide_bearing_temperature: Mapped[float | None] = mapped_column(Float, nullable=True)
+    thrust_bearing_temperature: Mapped[float | None] = mapped_column(Float, nullable=True)
+    cooling_water_temperature: Mapped[float | None] = mapped_column(Float, nullable=True)
+    sigma_plant: Mapped[float | None] = mapped_column(Float, nullable=True)
+    sigma_margin: Mapped[float | None] = mapped_column(Float, nullable=True)
 
 
 class WeeklyDrift(Base):
@@ -300,3 +313,95 @@ class ComputedFile(Base):
                                                   primary_key=True)
     computed_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
     code_version: Mapped[str] = mapped_column(String(40))
+
+
+class DetectorModel(Base):
+    """A trained anomaly detector of one unit: versioned, never rewritten.
+
+    ``blob`` holds the fitted estimator (joblib); ``features`` its ordered feature names;
+    ``baseline`` per-feature location and scale of the training windows (for explanations).
+    """
+
+    __tablename__ = "detector_models"
+    __table_args__ = (UniqueConstraint("unit_id", "version"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    unit_id: Mapped[int] = mapped_column(ForeignKey("units.id"), index=True)
+    version: Mapped[int] = mapped_column(Integer)
+    trained_from: Mapped[datetime] = mapped_column(UtcDateTime)
+    trained_to: Mapped[datetime] = mapped_column(UtcDateTime)
+    n_windows: Mapped[int] = mapped_column(Integer)
+    features: Mapped[list[str]] = mapped_column(JsonType)
+    params: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    threshold: Mapped[float] = mapped_column(Float)
+    baseline: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    blob: Mapped[bytes] = mapped_column(LargeBinary)
+    code_version: Mapped[str] = mapped_column(String(40))
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+
+
+class WindowScore(Base):
+    """A detector's verdict on one steady window (kept per detector version)."""
+
+    __tablename__ = "window_scores"
+
+    unit_id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    start: Mapped[datetime] = mapped_column(UtcDateTime, primary_key=True)
+    detector_model_id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    score: Mapped[float] = mapped_column(Float)
+    flagged: Mapped[bool] = mapped_column(Boolean)
+    signature: Mapped[str | None] = mapped_column(String(24), nullable=True)
+    explanation: Mapped[dict[str, Any]] = mapped_column(JsonType, default=dict)
+
+
+class AlertEpisode(Base):
+    """One episode of a signature on a unit: opens, updates, closes after a quiet period.
+
+    ``status``: open | acknowledged | closed | resolved. At most one episode per unit and
+    signature is not closed/resolved at any time.
+    """
+
+    __tablename__ = "alert_episodes"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    unit_id: Mapped[int] = mapped_column(ForeignKey("units.id"), index=True)
+    signature: Mapped[str] = mapped_column(String(24))
+    severity: Mapped[str] = mapped_column(String(16))  # info | warning | critical
+    status: Mapped[str] = mapped_column(String(16))
+    opened_at: Mapped[datetime] = mapped_column(UtcDateTime)
+    updated_at: Mapped[datetime] = mapped_column(UtcDateTime)
+    closed_at: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    first_window: Mapped[datetime] = mapped_column(UtcDateTime)
+    last_window: Mapped[datetime] = mapped_column(UtcDateTime)
+    n_windows: Mapped[int] = mapped_column(Integer)
+    peak: Mapped[float] = mapped_column(Float)
+    summary: Mapped[dict[str, Any]] = mapped_column(JsonType, default=dict)
+    acknowledged_by: Mapped[str | None] = mapped_column(String(120), nullable=True)
+    acknowledged_at: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    resolved_by: Mapped[str | None] = mapped_column(String(120), nullable=True)
+    resolved_at: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)
+    note: Mapped[str | None] = mapped_column(Text, nullable=True)
+
+
+class OutboxMessage(Base):
+    """A message to deliver to one channel target, written in the transaction of its event.
+
+    ``channel``: webhook | mqtt; ``status``: pending | delivered | dead. ``idempotency_key``
+    is sent with every attempt so receivers can drop repeats (at-least-once delivery).
+    """
+
+    __tablename__ = "outbox"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    idempotency_key: Mapped[str] = mapped_column(String(64), unique=True)
+    episode_id: Mapped[int | None] = mapped_column(Integer, nullable=True, index=True)
+    event: Mapped[str] = mapped_column(String(32))
+    channel: Mapped[str] = mapped_column(String(16))
+    target: Mapped[str] = mapped_column(Text)
+    payload: Mapped[dict[str, Any]] = mapped_column(JsonType)
+    status: Mapped[str] = mapped_column(String(16), index=True)
+    attempts: Mapped[int] = mapped_column(Integer, default=0)
+    next_attempt_at: Mapped[datetime] = mapped_column(UtcDateTime)
+    last_error: Mapped[str | None] = mapped_column(Text, nullable=True)
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime, default=utc_now)
+    delivered_at: Mapped[datetime | None] = mapped_column(UtcDateTime, nullable=True)

@@ -141,3 +141,4 @@ def test_cam_check_finds_the_mistuned_cam(year) -> None:
     assert (mistuned < 0).all()
     assert abs(changes(u1).median()) <= 0.5
     assert u2.totals["energy_gain"] > 3 * u1.totals["energy_gain"] > 0
+
