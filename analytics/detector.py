@@ -92,6 +92,7 @@ PLAUSIBLE_RANGES: Mapping[str, tuple[float, float]] = {
     "sigma_margin": (0.0, 100.0),
     "hf_vibration": (0.0, 2_000.0),  # [m/s2] RMS, about 200 g
     "pulsation_ratio": (0.0, 1.0),  # a pulsation of the whole head
+    "pulsation_excess": (0.0, 1.0),
     "shaft_vibration_residual": (-0.005, 0.005),  # [m], 5 mm
     "bearing_vibration_residual": (-0.05, 0.05),  # [m/s], 50 mm/s RMS
     "guide_bearing_rise_residual": (-50.0, 100.0),  # [K]
@@ -479,7 +480,8 @@ def name_signatures(z: pd.DataFrame, values: pd.DataFrame, *,
        z low) together with raised ``hf_vibration`` and/or a low ``deviation`` at
        ``load >= rules.high_load``; without a sigma margin (NaN), both raised
        ``hf_vibration`` and the high-load deficit (domain primer, section 5).
-    3. ``vortex_rope``: ``load <= rules.part_load_max`` with raised ``pulsation_ratio``.
+    3. ``vortex_rope``: ``load <= rules.part_load_max`` with raised ``pulsation_excess``
+       (or ``pulsation_ratio`` where the frame has no excess).
     4. ``bearing``: raised ``guide_bearing_rise_residual`` or
        ``thrust_bearing_rise_residual`` (temperature rise over the cooling water, at like
        load), or raised ``shaft_vibration_residual`` / ``bearing_vibration_residual``
@@ -515,7 +517,9 @@ def name_signatures(z: pd.DataFrame, values: pd.DataFrame, *,
     deficit_high_load = (zs("deviation") <= -t) & high_load
     cavitation = ((margin_low & (hf_raised | deficit_high_load))
                   | (margin_unknown & hf_raised & deficit_high_load))
-    vortex_rope = part_load & (zs("pulsation_ratio") >= t)
+    # the excess over a healthy level is the physical feature where the caller gives it
+    rope_feature = "pulsation_excess" if "pulsation_excess" in z.columns else "pulsation_ratio"
+    vortex_rope = part_load & (zs(rope_feature) >= t)
     bearing = np.zeros(n, dtype=bool)
     for name in ("guide_bearing_rise_residual", "thrust_bearing_rise_residual",
                  "shaft_vibration_residual", "bearing_vibration_residual"):

@@ -852,14 +852,17 @@ def _iter_wide(reader: _Reader) -> Iterator[CanonicalChunk]:
         cut = _truncated_rows(report, reader, lines, truncated, len(header))
         reject |= cut
         times = reader.times(text, lines, None, reject)
-        rows = times.assign(line=lines)
+        columns: dict[str, object] = {}
         for name in mapped:
             j = column_index[name]
             if j not in used:
                 continue
             values, flags = reader.cells(chunk[name], lines, name, plant.tags[name])
-            rows[f"v{j}"] = values
-            rows[f"f{j}"] = flags
+            columns[f"v{j}"] = values
+            columns[f"f{j}"] = flags
+        # one concat instead of a column at a time: wide exports have many tags
+        rows = pd.concat([times.assign(line=lines),
+                          pd.DataFrame(columns, index=times.index)], axis=1)
         keep = ~reject
         report.rows_rejected += int(reject.sum() - blank.sum())
         rows = rows[keep].reset_index(drop=True)

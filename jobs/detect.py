@@ -2,9 +2,10 @@
 
 * Features per steady window (SI or fractions): ``deviation`` (eta_i - eta_ref), ``load``
   (P / P_rated), ``opening``, ``sigma_margin`` (sigma_p / sigma_c), ``hf_vibration``,
-  ``pulsation_ratio`` (draft-tube pulsation over rho g H), and the vibration and
-  bearing-temperature-rise residuals against their load-band medians of the baseline
-  (:mod:`analytics.signatures`), so that a loaded unit is compared with itself at like load.
+  ``pulsation_excess`` (draft-tube pulsation over rho g H above
+  :data:`PULSATION_HEALTHY_RATIO`), and the vibration and bearing-temperature-rise
+  residuals against the baseline's straight line in load, so that a loaded unit is
+  compared with itself at like load, also at loads its baseline did not visit.
 * Training: the unit's steady windows of a declared healthy period (default: the first
   ``DEFAULT_BASELINE_DAYS`` of its reference epoch); the fitted estimator, its features,
   load-band table and training period are stored as a new ``detector_models`` version.
@@ -24,7 +25,7 @@ from sqlalchemy import delete, func, select
 from sqlalchemy.orm import Session
 
 from analytics.detector import WindowAnomalyDetector
-from analytics.signatures import band_residual, by_load_band, pulsation_ratio, temperature_rise
+from analytics.signatures import pulsation_ratio, temperature_rise
 from hydrodrift import __version__
 from hydrodrift.settings import Settings
 from ingest.plant_file import UnitSpec
@@ -43,7 +44,17 @@ from store.models import (
 #: windows (common practice: long enough to see the unit's load range, short enough that a
 #: slow drift has not set in).
 DEFAULT_BASELINE_DAYS = 56.0
-#: Quantities compared against their load-band baseline.
+#: Draft-tube pulsation (peak-to-peak over rho g H) a healthy unit may show at part load
+#: (common practice: a few tenths of a per cent; a developed rope gives several per cent).
+#: Only the excess above it is a feature, so that healthy part-load operation the baseline
+#: did not visit is not an anomaly.
+PULSATION_HEALTHY_RATIO = 0.01
+#: Features the service's detectors use, in order.
+DETECTOR_FEATURES = ("deviation", "load", "opening", "sigma_margin", "hf_vibration",
+                     "pulsation_excess", "shaft_vibration_residual",
+                     "bearing_vibration_residual", "guide_bearing_rise_residual",
+                     "thrust_bearing_rise_residual")
+#: Quantities compared against their baseline line in load.
 BAND_QUANTITIES = ("shaft_vibration", "bearing_vibration", "guide_bearing_rise",
                    "thrust_bearing_rise")
 
@@ -86,9 +97,10 @@ def raw_quantities(windows: pd.DataFrame, spec: UnitSpec, gravity: float) -> pd.
     out["opening"] = windows["opening"]
     out["sigma_margin"] = windows["sigma_margin"]
     out["hf_vibration"] = windows["hf_vibration"]
-    out["pulsation_ratio"] = np.asarray(pulsation_ratio(
+    ratio = np.asarray(pulsation_ratio(
         windows["draft_tube_pulsation"].to_numpy(), windows["net_head"].to_numpy(),
         windows["water_density"].to_numpy(), gravity), dtype=float)
+    out["pulsation_excess"] = np.maximum(ratio - PULSATION_HEALTHY_RATIO, 0.0)
     out["shaft_vibration"] = windows["shaft_vibration"]
     out["bearing_vibration"] = windows["bearing_vibration"]
     out["guide_bearing_rise"] = np.asarray(temperature_rise(
@@ -100,14 +112,33 @@ def raw_quantities(windows: pd.DataFrame, spec: UnitSpec, gravity: float) -> pd.
     return out
 
 
-def features(raw: pd.DataFrame, band_table: pd.DataFrame) -> pd.DataFrame:
+def load_lines(raw: pd.DataFrame) -> dict[str, list[float] | None]:
+    """Per band quantity, the baseline's least-squares line ``value = a + b * load``.
+
+    A straight line in load (bearing losses and vibration grow roughly linearly with load
+    over the operating range; common practice) extrapolates to loads the baseline did not
+    visit, where a table of load bands would have no value.
+    """
+    lines: dict[str, list[float] | None] = {}
+    for name in BAND_QUANTITIES:
+        ok = np.isfinite(raw[name].to_numpy()) & np.isfinite(raw["load"].to_numpy())
+        if ok.sum() < 10 or np.ptp(raw["load"].to_numpy()[ok]) < 0.05:
+            lines[name] = None
+            continue
+        b, a = np.polyfit(raw["load"].to_numpy()[ok], raw[name].to_numpy()[ok], 1)
+        lines[name] = [float(a), float(b)]
+    return lines
+
+
+def features(raw: pd.DataFrame, lines: dict[str, list[float] | None]) -> pd.DataFrame:
     """Detector features: raw quantities with the band quantities as residuals."""
     out = raw.drop(columns=list(BAND_QUANTITIES))
-    residual = band_residual(raw[list(BAND_QUANTITIES)], raw["load"].to_numpy(), band_table)
+    load = raw["load"].to_numpy()
     for name in BAND_QUANTITIES:
-        out[f"{name}_residual"] = residual[name].to_numpy()
-    # a quantity the plant does not export is all NaN: leave it out (the detector's own
-    # rule drops all-NaN features at training)
+        line = lines.get(name)
+        values = raw[name].to_numpy()
+        out[f"{name}_residual"] = (values - (line[0] + line[1] * load)
+                                   if line is not None else np.full(len(raw), np.nan))
     return out
 
 
@@ -132,9 +163,10 @@ def train_detector(session: Session, plant: Plant, unit: Unit, *, since: datetim
         raise DetectorError(f"{plant.code}/{unit.code}: no steady windows with a deviation "
                             f"between {since:%Y-%m-%d} and {until:%Y-%m-%d}")
     raw = raw_quantities(windows, spec, _gravity(plant))
-    band_table = by_load_band(raw[list(BAND_QUANTITIES)], raw["load"].to_numpy())
-    X = features(raw, band_table)
-    detector = WindowAnomalyDetector(random_state=random_state)
+    lines = load_lines(raw)
+    X = features(raw, lines)
+    detector = WindowAnomalyDetector(features=[c for c in DETECTOR_FEATURES if c in X],
+                                     random_state=random_state)
     try:
         detector.fit(X)
     except ValueError as exc:
@@ -147,21 +179,11 @@ def train_detector(session: Session, plant: Plant, unit: Unit, *, since: datetim
         n_windows=int(meta["n_windows"]), features=list(meta["features"]),
         params=meta["params"], threshold=float(meta["threshold"]),
         baseline={"features": meta["baseline"], "guard_threshold": meta["guard_threshold"],
-                  "load_bands": json_table(band_table)},
+                  "load_lines": lines},
         blob=detector.to_bytes(), code_version=__version__)
     session.add(row)
     session.flush()
     return row
-
-
-def json_table(table: pd.DataFrame) -> list[dict]:
-    """A band table as JSON records (NaN as None)."""
-    return [{k: (None if isinstance(v, float) and not np.isfinite(v) else v)
-             for k, v in rec.items()} for rec in table.to_dict(orient="records")]
-
-
-def _band_table(row: DetectorModel) -> pd.DataFrame:
-    return pd.DataFrame.from_records(row.baseline["load_bands"]).astype(float)
 
 
 def newest_detector(session: Session, unit: Unit) -> DetectorModel | None:
@@ -222,7 +244,7 @@ def score_windows(session: Session, plant: Plant, unit: Unit, row: DetectorModel
     if windows.empty:
         return pd.DataFrame(columns=["flagged"])
     raw = raw_quantities(windows, spec, _gravity(plant))
-    X = features(raw, _band_table(row))
+    X = features(raw, row.baseline["load_lines"])
     detector = WindowAnomalyDetector.from_bytes(row.blob)
     frame, explanation = detector.assess(X)
     flagged_pos = np.flatnonzero(frame["flagged"].to_numpy())

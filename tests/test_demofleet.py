@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import csv
 import json
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
 import numpy as np
@@ -22,7 +22,12 @@ from scipy.optimize import brentq
 from analytics.site import atmospheric_pressure, local_gravity
 from analytics.water import density
 from hydrodrift.demofleet import generate_demo, simulate_fleet
-from hydrodrift.demofleet.dispatch import SAMPLES_PER_HOUR, simulate_plant
+from hydrodrift.demofleet.dispatch import (
+    HF_VIBRATION_STOPPED_M_S2,
+    SAMPLES_PER_HOUR,
+    signature_state,
+    simulate_plant,
+)
 from hydrodrift.demofleet.hydraulics import generator_efficiency
 from hydrodrift.demofleet.physics import (
     AS_BUILT_FACTORS,
@@ -37,9 +42,12 @@ from hydrodrift.demofleet.scenario import (
     FAULTS,
     GLIMMERFELS,
     LANTERN_BEND,
+    SIGNATURES,
     plant_design,
 )
 from ingest.plant_file import PeltonGeometry, load_plant_file
+from ingest.readers import iter_canonical_chunks
+from ingest.report import FileReport
 from jobs.reference import REFERENCE_WATER_TEMPERATURE, runner_model
 
 DAYS = 14
@@ -121,9 +129,10 @@ def test_manifest_counts_the_rows(demo) -> None:
         skip = 2 if "glimmerfels" in path.name else 1  # preamble + header / header
         data_rows += len(path.read_text(encoding="utf-8").splitlines()) - skip
     assert data_rows == demo.rows_written
-    # every 10-minute sample: 4 units' wide rows less the 30-row gap, 38 long tags per sample
+    # every 10-minute sample: 4 units' wide rows less the 30-row gap, 44 long tags per sample
+    # (2 levels + 3 units x 14: 12 process tags, draft-tube pulsation and HF vibration)
     samples = DAYS * 24 * SAMPLES_PER_HOUR
-    assert demo.rows_written == (samples - 30) + samples * 38
+    assert demo.rows_written == (samples - 30) + samples * 44
 
 
 def test_short_spans_are_refused(tmp_path: Path) -> None:
@@ -801,7 +810,6 @@ def _cell(root: Path, fault: dict, line: int) -> str:
 def test_truth_lists_every_fault_in_the_files(demo, truth) -> None:
     root = demo.root
     assert len(truth["faults"]) == len(FAULTS)
-    assert truth["signatures"] == []
     for fault in truth["faults"]:
         kind = fault["kind"]
         if fault["plant"] == "LBD" and kind != "bad_timestamp":
@@ -810,7 +818,7 @@ def test_truth_lists_every_fault_in_the_files(demo, truth) -> None:
                 # the block starts with the first tag, at the faulty row's time
                 assert text[block - 1].split(",")[1] == "LBD.FB.ELEV.FT"
                 assert text[block - 1].split(",")[0] == text[line - 1].split(",")[0]
-                assert block <= line < block + 38
+                assert block <= line < block + 44
         if kind in ("sentinel", "text"):
             assert _cell(root, fault, fault["lines"][0]) == fault["raw"]
         elif kind == "stuck":
@@ -874,3 +882,446 @@ def test_no_accidental_flat_lines(demo, plants) -> None:
             lengths = np.diff(np.concatenate([[-1], change, [v.size - 1]]))
             runs += [(tag, int(n)) for n in lengths if n >= 6]
     assert runs == [("LBD.TW.ELEV.FT", 42)]
+
+
+# --------------------------------------------------------------------------- signatures
+#: The planted condition-monitoring episodes as the scenario states them (UTC, exact).
+STATED_SIGNATURES = [
+    ("LBD", "U1", "vortex_rope", "2026-03-09T14:00:00Z", "2026-03-16T14:00:00Z"),
+    ("GLF", "MG4", "bearing", "2026-06-08T06:00:00Z", "2026-06-29T06:00:00Z"),
+    ("LBD", "U2", "cavitation", "2026-07-27T13:00:00Z", "2026-07-30T13:00:00Z"),
+    ("LBD", "U2", "cavitation", "2026-08-31T13:00:00Z", "2026-09-04T13:00:00Z"),
+    ("LBD", "U2", "cavitation", "2026-10-05T13:00:00Z", "2026-10-07T13:00:00Z"),
+]
+BASELINE = pd.Timedelta(weeks=8)  # a detector's default healthy baseline from the start
+#: After an episode the bearing temperatures still carry its lag (tau 45 min): 24 h is
+#: 32 time constants, e^-32 of a few K is far below any tolerance used here.
+LAG_MARGIN = pd.Timedelta(hours=24)
+GRAVITY_STANDARD = 9.80665  # [m/s2] standard gravity g_n (3rd CGPM 1901, a definition)
+PSI = 4.4482216152605 / 0.0254**2  # [Pa] lbf/in2 from the definitions of lbf and inch
+
+
+def _iso(moment: datetime) -> str:
+    return moment.astimezone(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def _window(sim, start, end) -> np.ndarray:
+    t = sim.cal.times
+    return np.asarray((t >= pd.Timestamp(start)) & (t < pd.Timestamp(end)))
+
+
+def _load(sim, code: str) -> np.ndarray:
+    return sim.units[code].generator_power / sim.plant.unit(code).rated_power
+
+
+def _mine(plant: str, kind: str | None = None) -> list:
+    return [s for s in SIGNATURES if s.plant == plant and kind in (None, s.signature)]
+
+
+@pytest.fixture(scope="module")
+def year(plants) -> dict:
+    """A year of each plant with the planted signatures, and the same year (same seed)
+    without them: (with, without) by plant code."""
+    out = {}
+    for design in (GLIMMERFELS, LANTERN_BEND):
+        plant = plants[design.code]
+        out[design.code] = (
+            simulate_plant(design, plant, start=DEFAULT_START, days=365, seed=SEED),
+            simulate_plant(design, plant, start=DEFAULT_START, days=365, seed=SEED,
+                           signatures=()))
+    return out
+
+
+def _healthy_hf(sim, code: str) -> np.ndarray:
+    """The scenario's healthy HF vibration law, RMS a (0.35 + 0.65 load) [m/s2] (invented)."""
+    design = next(u for u in sim.design.units if u.code == code)
+    on = sim.units[code].online
+    return np.where(on, design.hf_vibration_m_s2 * (0.35 + 0.65 * _load(sim, code)),
+                    HF_VIBRATION_STOPPED_M_S2)
+
+
+def _pulsation_of_head(sim, code: str) -> np.ndarray:
+    """Draft-tube pulsation peak to peak over rho g H (net head), the IEC 60193 way of
+    scaling pressure fluctuations by the specific hydraulic energy; NaN while stopped."""
+    op = sim.units[code]
+    tag = _tags(sim)[(code, "draft_tube_pulsation")]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(op.online, sim.clean[tag] / (op.rho * op.g * op.net_head), np.nan)
+
+
+def _thoma_sigma(tailwater, head, water_k, site_elevation: float, runner_elevation: float,
+                 rho: float, g: float) -> np.ndarray:
+    """Plant cavitation number sigma = (p_atm/(rho g) - p_v/(rho g) - H_s) / H.
+
+    Thoma's definition (IEC 60193, domain.md section 5), with p_atm from the standard
+    atmosphere p = 101325 (1 - 2.25577e-5 z)^5.25588 Pa (ISO 2533 troposphere, from memory)
+    and the vapour pressure from iapws.IAPWS97 (registry package) at saturation (x = 0).
+    """
+    p_atm = 101325.0 * (1.0 - 2.25577e-5 * site_elevation) ** 5.25588
+    p_v = np.array([IAPWS97(T=float(t), x=0).P * MPA for t in water_k])
+    h_s = runner_elevation - np.asarray(tailwater)
+    return (p_atm / (rho * g) - p_v / (rho * g) - h_s) / np.asarray(head)
+
+
+def test_truth_lists_the_signatures_with_exact_times(truth) -> None:
+    listed = truth["signatures"]
+    assert [(s["plant"], s["unit"], s["signature"], s["start"], s["end"])
+            for s in listed] == STATED_SIGNATURES
+    # the declarative source and the truth file agree entry by entry
+    assert [(s.plant, s.unit, s.signature, _iso(s.start), _iso(s.end))
+            for s in SIGNATURES] == STATED_SIGNATURES
+    end_of_year = pd.Timestamp(DEFAULT_START) + pd.Timedelta(days=365)
+    for entry, spec in zip(listed, SIGNATURES, strict=True):
+        assert set(entry) == {"plant", "unit", "signature", "start", "end", "cause",
+                              "magnitude", "in_span"}
+        assert entry["magnitude"] == spec.magnitude and entry["cause"] == spec.cause
+        assert "invented" in entry["cause"]
+        assert entry["in_span"] is False  # the demo's fortnight from 2025-12-01 holds none
+        start, end = pd.Timestamp(entry["start"]), pd.Timestamp(entry["end"])
+        # every unit's first 8 weeks (a detector's healthy baseline) are clean, and every
+        # episode lies inside the default year
+        assert start >= pd.Timestamp(DEFAULT_START) + BASELINE
+        assert end <= end_of_year
+        days = (end - start) / pd.Timedelta(days=1)
+        low, high = {"cavitation": (2, 4), "vortex_rope": (5, 10),
+                     "bearing": (14, 21)}[entry["signature"]]
+        assert low <= days <= high, entry
+        for outage in truth["outages"]:  # no episode falls into the unit's planned outage
+            if (outage["plant"], outage["unit"]) == (entry["plant"], entry["unit"]):
+                assert pd.Timestamp(outage["end"]) <= start or pd.Timestamp(
+                    outage["start"]) >= end
+    kinds = [s["signature"] for s in listed]
+    assert kinds.count("cavitation") == 3 and kinds.count("vortex_rope") == 1
+    assert kinds.count("bearing") == 1
+    units = {(u["plant"], u["unit"]): u["runner_type"] for u in truth["units"]}
+    for entry in listed:
+        if entry["signature"] == "cavitation":
+            assert units[(entry["plant"], entry["unit"])] == "kaplan"
+        if entry["signature"] == "vortex_rope":  # a rope needs a draft tube
+            assert units[(entry["plant"], entry["unit"])] in ("francis", "kaplan")
+    # the drifting units keep a clean drift truth, and GLF MG1 and MG3 have no signature
+    assert {(s["plant"], s["unit"]) for s in listed}.isdisjoint(
+        {("LBD", "U3"), ("GLF", "MG2"), ("GLF", "MG1"), ("GLF", "MG3")})
+    for a in listed:  # one unit's episodes never overlap
+        for b in listed:
+            if a is not b and (a["plant"], a["unit"]) == (b["plant"], b["unit"]):
+                assert a["end"] <= b["start"] or b["end"] <= a["start"]
+    assert "peak-to-peak" in truth["physics"]["condition_monitoring"]
+
+
+def test_condition_monitoring_tags_parse_to_si(demo, plants, sims) -> None:
+    """hf_vibration on every unit, draft_tube_pulsation where there is a draft tube; their
+    plant units convert exactly and ingestion reads the exported values back."""
+    factors = {"GLF": {"hf_vibration": ("m/s**2", 1.0), "draft_tube_pulsation": ("kPa", 1e3)},
+               "LBD": {"hf_vibration": ("g_n", GRAVITY_STANDARD),
+                       "draft_tube_pulsation": ("psi", PSI)}}
+    new_tags: dict[str, list[tuple[str, str, str, float]]] = {}
+    for code, plant in plants.items():
+        design = plant_design(code)
+        for unit in plant.units:
+            mine = {m.signal: (t, m) for t, m in plant.tags.items() if m.unit == unit.code}
+            assert "hf_vibration" in mine
+            assert ("draft_tube_pulsation" in mine) == (unit.runner_type != "pelton")
+            for signal in ("hf_vibration", "draft_tube_pulsation"):
+                if signal not in mine:
+                    continue
+                tag, mapping = mine[signal]
+                uom, factor = factors[code][signal]
+                assert mapping.uom == uom
+                assert mapping.to_si() == pytest.approx((factor, 0.0), rel=1e-12, abs=1e-12)
+                decimals = next(t.decimals for t in design.tags if t.tag == tag)
+                new_tags.setdefault(code, []).append(
+                    (unit.code, signal, tag, 0.5 * 10.0**-decimals * factor))
+    assert len(new_tags["GLF"]) == 4 + 2 and len(new_tags["LBD"]) == 3 * 2
+    checked = 0
+    for path in demo.export_files:
+        code = "GLF" if "glimmerfels" in path.name else "LBD"
+        sim = sims[code]
+        frame = pd.concat([c.frame for c in iter_canonical_chunks(path, plants[code],
+                                                                  FileReport(path.name))])
+        for unit_code, signal, tag, half in new_tags[code]:
+            rows = frame[frame["unit"] == unit_code]
+            index = sim.cal.times.get_indexer(pd.DatetimeIndex(rows["ts"]))
+            assert (index >= 0).all()
+            # read back to the printed digit (half of it, plus the float's round-off)
+            read = rows[signal].to_numpy()
+            assert np.all(np.abs(read - sim.measured[tag][index]) <= 1.001 * half + 1e-12), tag
+            assert np.all(read >= 0.0)  # RMS and peak-to-peak levels are never negative
+            checked += read.size
+    assert checked == 12 * DAYS * 24 * SAMPLES_PER_HOUR - 6 * 30  # GLF's 30-row gap
+
+
+def test_signature_state_depends_on_load_as_stated() -> None:
+    """Cavitation only at high load (ramp from the onset to the full load), a rope only at
+    part load (Gaussian around its load), nothing on other units or outside the period."""
+    cavitation = _mine("LBD", "cavitation")[0]
+    m = cavitation.magnitude
+    mid = pd.DatetimeIndex([cavitation.start + (cavitation.end - cavitation.start) / 2] * 6)
+    load = np.array([0.3, 0.65, 0.75, 0.85, 0.95, 0.95])
+    online = np.array([True] * 5 + [False])
+    state = signature_state("LBD", "U2", mid, load, online)
+    assert np.allclose(state.cavitation, [0.0, 0.0, 0.5, 1.0, 1.0, 0.0], rtol=0, atol=1e-12)
+    assert np.allclose(state.efficiency_deficit, m["efficiency_deficit_fraction"]
+                       * state.cavitation, rtol=0, atol=1e-15)
+    assert np.allclose(state.hf_vibration_rise, m["hf_vibration_rise_m_s2"] * state.cavitation)
+    assert not signature_state("LBD", "U1", mid, load, online).cavitation.any()
+    before = pd.DatetimeIndex([cavitation.start - timedelta(minutes=10)] * 6)
+    assert not signature_state("LBD", "U2", before, load, online).cavitation.any()
+    rope = _mine("LBD", "vortex_rope")[0]
+    r = rope.magnitude
+    mid = pd.DatetimeIndex([rope.start + (rope.end - rope.start) / 2] * 3)
+    state = signature_state("LBD", "U1", mid, np.array([0.2, 0.47, 0.9]), np.ones(3, bool))
+    expected = np.exp(-((np.array([0.2, 0.47, 0.9]) - r["rope_load_fraction"])
+                        / r["rope_load_width_fraction"]) ** 2)
+    assert np.allclose(state.rope, expected, rtol=0, atol=1e-15)
+    assert state.rope[1] == 1.0 and state.rope[2] < 1e-3
+    assert np.allclose(state.pulsation_rise_of_head, r["pulsation_rise_of_head"] * expected)
+
+
+def test_cavitation_episodes_low_tailwater_high_load_hf_and_deficit(year) -> None:
+    sim, without = year["LBD"]
+    unit = sim.plant.unit("U2")
+    tags = _tags(sim)
+    site = sim.plant.plant
+    hf = sim.clean[tags[("U2", "hf_vibration")]]
+    load = _load(sim, "U2")
+    state = sim.signatures["U2"]
+    anywhere = np.zeros(len(sim.cal.times), dtype=bool)
+    rising = []
+    for s in _mine("LBD", "cavitation"):
+        m = s.magnitude
+        ramp = timedelta(seconds=m["drawdown_ramp_s"])
+        inside, full = _window(sim, s.start, s.end), _window(sim, s.start + ramp, s.end - ramp)
+        anywhere |= inside
+        # the tailwater really is lower: by the stated drawdown between the ramps
+        drop = without.tailwater - sim.tailwater
+        assert np.allclose(drop[full], m["tailwater_drawdown_m"], rtol=0, atol=1e-9)
+        assert np.all((drop[inside] >= 0) & (drop[inside] <= m["tailwater_drawdown_m"] + 1e-9))
+        # U2 carries the load in its stated band; U1 and U3 stand by (a cap of 0), so no
+        # other unit runs at the low sigma
+        assert sim.units["U2"].online[inside].all()
+        assert np.all((load[inside] >= m["unit_load_min_fraction"] - 1e-9)
+                      & (load[inside] <= m["unit_load_max_fraction"] + 1e-9))
+        assert m["other_units_load_max_fraction"] == 0.0
+        for other in ("U1", "U3"):
+            assert not sim.units[other].online[inside].any()
+        # plant sigma (Thoma) with U2's net head drops by ~0.1: below the Kaplan critical
+        # sigma of ~0.5-0.6 at n_q ~180 (from memory). Without the episode the same hours
+        # give a higher sigma even on the larger gross head (a conservative comparison).
+        hourly = np.flatnonzero(full)[::SAMPLES_PER_HOUR]
+        args = (site.elevation, unit.runner_reference_elevation, 1000.0, sim.units["U2"].g)
+        sigma = _thoma_sigma(sim.tailwater[hourly], sim.units["U2"].net_head[hourly],
+                             sim.water_temperature[hourly], *args)
+        sigma_without = _thoma_sigma(without.tailwater[hourly],
+                                     (without.headwater - without.tailwater)[hourly],
+                                     without.water_temperature[hourly], *args)
+        assert np.all(sigma < 0.56) and np.all(sigma_without > 0.60)
+        assert np.median(sigma_without - sigma) > 0.08
+        # intensity: the drawdown's share times the load ramp, from the noise-free signals
+        ramp_load = np.clip((load - m["onset_load_fraction"])
+                            / (m["full_load_fraction"] - m["onset_load_fraction"]), 0, 1)
+        intensity = drop / m["tailwater_drawdown_m"] * ramp_load
+        assert np.allclose(state.cavitation[inside], intensity[inside], rtol=0, atol=1e-9)
+        # HF vibration: the healthy law plus the stated rise times the intensity
+        assert np.allclose(hf[inside] - _healthy_hf(sim, "U2")[inside],
+                           m["hf_vibration_rise_m_s2"] * intensity[inside], rtol=0, atol=1e-9)
+        rising.append(hf[full & (intensity > 0.99)])
+    # rising strongly: over 5x the unit's own high-load level outside the episodes
+    high_outside = ~anywhere & sim.units["U2"].online & (load >= 0.85)
+    assert high_outside.sum() > 500
+    assert np.median(np.concatenate(rising)) > 5 * np.median(hf[high_outside])
+    # efficiency: the truth loses the stated deficit times the intensity in the episodes and
+    # nothing elsewhere (U2 is otherwise healthy)
+    op = sim.units["U2"]
+    on = op.online
+    lost = (op.reference_efficiency - op.turbine_efficiency + op.off_cam_effect)
+    deficit = _mine("LBD", "cavitation")[0].magnitude["efficiency_deficit_fraction"]
+    assert np.allclose(lost[on], deficit * state.cavitation[on], rtol=0, atol=1e-14)
+    assert np.abs(lost[on & ~anywhere]).max() < 1e-14
+    assert np.all(state.cavitation[~anywhere] == 0.0)
+    # the same from the noise-free exported signals (index efficiency from WK dp, levels,
+    # power, opening and blade angle): the Kaplan's mm-size head error (see the drift test)
+    # moves a deficit by ~1e-5, so 5e-5 is the bound
+    heavy = op.generator_power > 0.5 * unit.rated_power
+    _, from_exports = _index_deficit(sim, "U2", measured=False)
+    assert np.allclose(from_exports, deficit * state.cavitation[heavy], rtol=0, atol=5e-5)
+    # and with sensor noise: medians over ~1,000 samples of the full episode against the
+    # unit's high-load samples outside differ by the deficit within 0.05 point (per-sample
+    # noise ~0.2 point, invented noise levels)
+    _, noisy = _index_deficit(sim, "U2", measured=True)
+    heavy = sim.measured[tags[("U2", "active_power")]] > 0.5 * unit.rated_power  # its mask
+    full_cavitation = state.cavitation[heavy] > 0.99
+    outside = ~anywhere[heavy] & (load[heavy] >= 0.85)
+    assert full_cavitation.sum() > 500
+    assert np.median(noisy[full_cavitation]) - np.median(noisy[outside]) == pytest.approx(
+        deficit, abs=5e-4)
+    # no other unit of either plant ever cavitates
+    for plant in ("GLF", "LBD"):
+        for code, st in year[plant][0].signatures.items():
+            if (plant, code) != ("LBD", "U2"):
+                assert not st.cavitation.any() and not st.efficiency_deficit.any(), code
+
+
+def test_vortex_rope_period_part_load_and_draft_tube_pulsation(year) -> None:
+    sim, _ = year["LBD"]
+    rope = _mine("LBD", "vortex_rope")[0]
+    m = rope.magnitude
+    inside = _window(sim, rope.start, rope.end)
+    load = _load(sim, "U1")
+    op = sim.units["U1"]
+    assert op.online[inside].all()
+    assert np.all((load[inside] >= m["unit_load_min_fraction"] - 1e-9)
+                  & (load[inside] <= m["unit_load_max_fraction"] + 1e-9))
+    ratio = _pulsation_of_head(sim, "U1")
+    # a few % of rho g H peak to peak during the rope (several kPa at ~18.5 m), against
+    # well under 1 % for the same unit at the same part load outside the period
+    assert np.all((ratio[inside] > 0.03) & (ratio[inside] < 0.05))
+    kpa = sim.clean[_tags(sim)[("U1", "draft_tube_pulsation")]][inside] / 1e3
+    assert 5.0 < np.median(kpa) < 9.0
+    like_load = ~inside & op.online & (load >= 0.42) & (load <= 0.53)
+    assert like_load.sum() > 200
+    assert np.nanmax(ratio[like_load]) < 0.006
+    assert np.nanmin(ratio[inside]) > 5 * np.nanmax(ratio[like_load])
+    expected = (m["pulsation_rise_of_head"] * np.exp(
+        -((load - m["rope_load_fraction"]) / m["rope_load_width_fraction"]) ** 2))
+    assert np.allclose(sim.signatures["U1"].pulsation_rise_of_head[inside], expected[inside],
+                       rtol=0, atol=1e-15)
+    # the rope is the only change: efficiency and HF vibration follow the healthy unit
+    lost = (op.reference_efficiency - op.turbine_efficiency + op.off_cam_effect)[op.online]
+    assert np.abs(lost).max() < 1e-14
+    assert np.allclose(sim.clean[_tags(sim)[("U1", "hf_vibration")]], _healthy_hf(sim, "U1"),
+                       rtol=0, atol=1e-12)
+    # every other draft tube, and U1 outside its period, stays below 1 % of rho g H
+    for plant in ("GLF", "LBD"):
+        s = year[plant][0]
+        for code, unit in ((u.code, u) for u in s.plant.units):
+            if unit.runner_type == "pelton":
+                assert (code, "draft_tube_pulsation") not in _tags(s)
+                continue
+            r = _pulsation_of_head(s, code)
+            quiet = ~inside if (plant, code) == ("LBD", "U1") else np.ones(r.size, bool)
+            assert np.nanmax(r[quiet]) < 0.01, (plant, code)
+
+
+def test_bearing_fault_raises_the_guide_bearing_over_cooling_water(year) -> None:
+    sim, without = year["GLF"]
+    fault = _mine("GLF", "bearing")[0]
+    m = fault.magnitude
+    tags = _tags(sim)
+
+    def rise(s, code):  # guide-bearing metal over cooling water inlet [K]
+        return (s.clean[tags[(code, "guide_bearing_temperature")]]
+                - s.clean[tags[(code, "cooling_water_temperature")]])
+
+    excess = rise(sim, "MG4") - rise(without, "MG4")
+    settled = _window(sim, fault.start + timedelta(seconds=m["ramp_s"]) + LAG_MARGIN,
+                      fault.end)
+    # the rise over the 2 K standstill offset grows by the stated factor once the ramp and
+    # the bearing lag have settled (the lag is linear, so the factor passes through it)
+    assert np.allclose(excess[settled], m["rise_factor"] * (rise(without, "MG4") - 2.0)[settled],
+                       rtol=0, atol=1e-6)
+    # several K while running at like load, against the unit's twin MG3 (same design)
+    on4, on3 = (_settled_online(sim, code) for code in ("MG4", "MG3"))
+    like = on4 & on3 & (np.abs(_load(sim, "MG4") - _load(sim, "MG3")) < 0.01)
+    twin = rise(sim, "MG4") - rise(sim, "MG3")
+    assert (settled & like).sum() > 200
+    assert np.all(twin[settled & like] > 5.0) and np.median(twin[settled & like]) < 9.0
+    clean = ~_window(sim, fault.start, fault.end + LAG_MARGIN)
+    assert (clean & like).sum() > 1000
+    assert np.abs(twin[clean & like]).max() < 0.5
+    # halfway through the ramp the factor is half its full value
+    half = _window(sim, fault.start + timedelta(seconds=m["ramp_s"] / 2),
+                   fault.start + timedelta(seconds=m["ramp_s"] / 2, minutes=10))
+    assert sim.signatures["MG4"].bearing_rise_factor[half] == pytest.approx(
+        [m["rise_factor"] / 2], abs=1e-12)
+    # gone once the cleaned cooler is in; the thrust bearing never changes
+    assert np.abs(excess[clean]).max() < 1e-9
+    thrust = tags[("MG4", "thrust_bearing_temperature")]
+    assert np.array_equal(sim.clean[thrust], without.clean[thrust])
+
+
+def _settled_online(sim, code: str, hours: float = 6.0) -> np.ndarray:
+    """True where ``code`` has been online for at least the last ``hours`` (settled
+    bearing temperatures: 6 h is 8 of their 45-minute time constants)."""
+    on = sim.units[code].online.astype(int)
+    n = int(hours * SAMPLES_PER_HOUR)
+    window = np.convolve(on, np.ones(n, dtype=int), mode="full")[: on.size]
+    return window == n
+
+
+def test_signatures_are_absent_outside_their_periods(year) -> None:
+    """Outside its episodes (and a day after each, for the bearing lag) every noise-free
+    signal of the year equals the same year simulated without signatures; the healthy
+    units (GLF MG1 and MG3 among them) equal it everywhere."""
+    for plant in ("GLF", "LBD"):
+        sim, without = year[plant]
+        touched = np.zeros(len(sim.cal.times), dtype=bool)
+        for s in _mine(plant):
+            touched |= _window(sim, s.start, s.end + LAG_MARGIN)
+        baseline = np.asarray(sim.cal.times < pd.Timestamp(DEFAULT_START) + BASELINE)
+        assert not touched[baseline].any()  # the first 8 weeks are clean
+        signed = {s.unit for s in _mine(plant)}
+        for tag, mapping in sim.plant.tags.items():
+            a, b = sim.clean[tag], without.clean[tag]
+            # exactly equal, but for the tail of a bearing lag (a first-order filter decays
+            # without ever reaching zero: e^-32 of a few K after a day)
+            same = np.array_equal if "temperature" not in mapping.signal else (
+                lambda x, y: np.allclose(x, y, rtol=0, atol=1e-9))
+            assert same(a[~touched], b[~touched]), tag
+            # and the measured values too: the noise streams do not depend on the episodes
+            assert same(sim.measured[tag][~touched], without.measured[tag][~touched]), tag
+            if plant == "GLF" and mapping.unit not in signed:
+                # Glimmerfels holds no unit's load: its healthy units never change at all
+                assert np.array_equal(a, b), tag
+        for code, state in sim.signatures.items():
+            for name in ("cavitation", "rope", "bearing_rise_factor"):
+                assert not getattr(state, name)[~touched].any(), (code, name)
+            if code not in signed:
+                assert not any(getattr(state, f).any() for f in (
+                    "cavitation", "efficiency_deficit", "hf_vibration_rise", "rope",
+                    "pulsation_rise_of_head", "bearing_rise_factor")), code
+            # HF vibration follows the healthy law wherever the unit has no cavitation
+            hf = sim.clean[_tags(sim)[(code, "hf_vibration")]]
+            calm = state.cavitation == 0
+            assert np.allclose(hf[calm], _healthy_hf(sim, code)[calm], rtol=0, atol=1e-12)
+    # the drift truth is untouched: U3 and MG2 lose exactly their conditions' efficiency
+    for plant, code in (("LBD", "U3"), ("GLF", "MG2")):
+        sim, without = year[plant]
+        assert np.array_equal(sim.units[code].degradation, without.units[code].degradation)
+
+
+def test_a_demo_over_the_rope_start_shows_it_in_the_exports(tmp_path: Path) -> None:
+    """Four days from 2026-03-08: the rope is in span, the export shows U1's pulsation jump
+    at the stated hour, and the same arguments still give byte-identical files."""
+    start = datetime(2026, 3, 8, tzinfo=UTC)
+    first = generate_demo(tmp_path / "a", days=4, start=start)
+    second = generate_demo(tmp_path / "b", days=4, start=start)
+    a, b = _files(first.root), _files(second.root)
+    assert a.keys() == b.keys() and all(a[k] == b[k] for k in a)
+    truth = json.loads(first.truth_file.read_text())
+    assert [s["signature"] for s in truth["signatures"] if s["in_span"]] == ["vortex_rope"]
+    plant = load_plant_file(first.root / "plants" / "lbd.toml")
+    frames = [c.frame for p in first.export_files if "lantern" in p.name
+              for c in iter_canonical_chunks(p, plant, FileReport(p.name))]
+    df = pd.concat(frames)
+    u1 = df[df["unit"] == "U1"].set_index("ts")  # the plant's levels come with each unit
+    gross = u1["headwater_level"] - u1["tailwater_level"]
+    g = float(local_gravity(plant.plant.latitude, plant.plant.elevation))
+    # over rho g H_gross with rho ~1000 kg/m3 (cold water, within 0.1 %) and the gross head
+    # (net head is ~2 % lower): a lower bound of the ratio to net head
+    ratio = u1["draft_tube_pulsation"] / (1000.0 * g * gross)
+    online = u1["active_power"] > 0
+    rope_start = pd.Timestamp(truth["signatures"][0]["start"])
+    before = ratio[online & (u1.index < rope_start)]
+    during = ratio[u1.index >= rope_start]
+    assert before.size > 100 and during.size > 100
+    assert before.max() < 0.01
+    # 4 % x the load Gaussian (>= 0.85 at 42-53 % load) less 5 % sensor noise, 2 % head
+    assert during.min() > 0.025
+    # held at 42-53 % of its 30 MW (0.1 % power noise); the NaNs are the bad-timestamp
+    # fault's rejected power cells (truth.json)
+    held = u1.loc[u1.index >= rope_start, "active_power"] / 30e6
+    rejected = [t for f in truth["faults"] if f["kind"] == "bad_timestamp"
+                for t in f["times_utc"] if pd.Timestamp(t) >= rope_start]
+    assert held.isna().sum() == len(rejected) == 2
+    assert held.dropna().between(0.415, 0.535).all()

@@ -21,7 +21,7 @@ from datetime import datetime
 import numpy as np
 import pandas as pd
 import pytest
-from sqlalchemy import Engine, select
+from sqlalchemy import Engine, func, select
 
 from analytics.drift import iso_week
 from hydrodrift.demofleet import generate_demo
@@ -142,3 +142,77 @@ def test_cam_check_finds_the_mistuned_cam(year) -> None:
     assert abs(changes(u1).median()) <= 0.5
     assert u2.totals["energy_gain"] > 3 * u1.totals["energy_gain"] > 0
 
+
+
+def _scored_windows(engine: Engine) -> pd.DataFrame:
+    """Every steady scored window of the fleet with its unit, load and verdict."""
+    from store.models import DetectorModel, EfficiencyWindow, WindowScore
+
+    with session_scope(engine) as session:
+        newest = (select(DetectorModel.unit_id, func.max(DetectorModel.id).label("id"))
+                  .group_by(DetectorModel.unit_id).subquery())
+        rows = session.execute(
+            select(Plant.code, Unit.code, Unit.id, WindowScore.start, WindowScore.flagged,
+                   WindowScore.signature, EfficiencyWindow.generator_power)
+            .join(Unit, Unit.id == WindowScore.unit_id).join(Plant, Plant.id == Unit.plant_id)
+            .join(newest, (newest.c.unit_id == WindowScore.unit_id)
+                  & (newest.c.id == WindowScore.detector_model_id))
+            .join(EfficiencyWindow, (EfficiencyWindow.unit_id == WindowScore.unit_id)
+                  & (EfficiencyWindow.start == WindowScore.start))).all()
+    frame = pd.DataFrame(rows, columns=["plant", "unit", "unit_id", "start", "flagged",
+                                        "signature", "power"])
+    frame["start"] = pd.to_datetime(frame["start"], utc=True)
+    return frame
+
+
+@pytest.mark.parametrize("kind", [
+    "cavitation", "vortex_rope",
+    pytest.param("bearing", marks=pytest.mark.xfail(strict=True, reason=(
+        "not met yet (issue 4 open): GLF MG4's +7.5 K guide-bearing rise is within the "
+        "detector's flag threshold (recall 0.0 measured), and the Kaplans' part-load rough-"
+        "zone vibration, not linear in load, is named bearing on 1,400 windows"))),
+])
+def test_detector_finds_the_planted_signatures(year, kind: str) -> None:
+    """Recall >= 0.9 and precision >= 0.8 per signature over steady windows (issue 4).
+
+    Positives: the steady windows of the signature's unit inside its truth period (the
+    periods are where truth.json says the planted condition acts). A window counts as found
+    when it is flagged AND named with that signature; precision is over every window the
+    detector gives that name, fleet-wide.
+    """
+    engine, truth = year
+    scored = _scored_windows(engine)
+    assert len(scored) > 10_000
+    planted = [s for s in truth["signatures"] if s["signature"] == kind]
+    assert planted, kind
+    positive = pd.Series(False, index=scored.index)
+    for s in planted:
+        start = pd.Timestamp(s["start"])
+        end = pd.Timestamp(s["end"])
+        positive |= ((scored["plant"] == s["plant"]) & (scored["unit"] == s["unit"])
+                     & (scored["start"] >= start) & (scored["start"] < end))
+    named = scored["flagged"] & (scored["signature"] == kind)
+    recall = (named & positive).sum() / positive.sum()
+    precision = (named & positive).sum() / max(named.sum(), 1)
+    assert recall >= 0.9, (kind, recall, int(positive.sum()))
+    assert precision >= 0.8, (kind, precision, int(named.sum()))
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "not met yet (issue 4 open): GLF MG1 has 1.8 % of its steady windows flagged (seasonal "
+    "sigma-margin and thrust-bearing-rise changes the winter baseline did not see) and "
+    "opens episodes"))
+def test_detector_is_quiet_on_the_healthy_unit(year) -> None:
+    engine, truth = year
+    planted_units = {(s["plant"], s["unit"]) for s in truth["signatures"]}
+    assert ("GLF", "MG1") not in planted_units
+    scored = _scored_windows(engine)
+    mg1 = scored[(scored["plant"] == "GLF") & (scored["unit"] == "MG1")]
+    assert len(mg1) > 1000
+    assert mg1["flagged"].mean() < 0.01
+    from store.models import AlertEpisode
+
+    with session_scope(engine) as session:
+        unit_id = int(mg1["unit_id"].iloc[0])
+        assert session.scalar(select(func.count()).select_from(AlertEpisode)
+                              .where(AlertEpisode.unit_id == unit_id)) == 0

@@ -7,7 +7,12 @@ demonstrate and test the pipeline, never as engineering data.
 
     root/plants/<code>.toml           plant files (ingest.plant_file schema)
     root/exports/<code>/<prefix>_YYYY-MM.csv   one export per plant per local month
-    root/truth.json                   what was planted: degradation, faults, outages
+    root/truth.json                   what was planted: degradation, faults, outages,
+                                      condition-monitoring signatures
+
+The signatures (cavitation, vortex rope, bearing) show what a monitoring service would
+flag; on a real unit such flags call for inspection by qualified staff, and local codes and
+licensed practice prevail.
 """
 
 from __future__ import annotations
@@ -216,7 +221,20 @@ def _truth(seed: int, start: datetime, days: int, written: list[tuple[Path, Plan
             "efficiency": "turbine efficiency = the unit's as-built velocity-triangle model "
                           "(analytics.runners, coefficients above) on its installed cam, plus "
                           "the off-cam effect of the governor's blade-angle error (Kaplan), "
-                          "minus the unit's degradation",
+                          "minus the unit's degradation, minus the cavitation deficit "
+                          "during its cavitation signatures",
+            "condition_monitoring": "invented levels: hf_vibration is the RMS "
+                          "cavitation-band acceleration, a (0.35 + 0.65 load) plus the "
+                          "cavitation rise; draft_tube_pulsation is the peak-to-peak "
+                          "draft-tube pressure pulsation, (base + part-load hump + vortex-rope "
+                          "rise) x rho g H with H the net head (Francis and Kaplan only); "
+                          "guide-bearing rise over cooling water grows by the bearing "
+                          "signature's rise_factor; load = P_gen / P_rated",
+            "signatures": "each signature acts only within [start, end) UTC; 'magnitude' "
+                          "gives its parameters (SI; loads as fractions of rated power, "
+                          "pulsations as fractions of rho g H); cavitation also lowers the "
+                          "plant's tailwater and holds the unit at high load, a vortex rope "
+                          "holds the unit at part load",
             "energy_balance": "P_gen = rho g Q H eta_turbine eta_generator (noise-free)",
             "winter_kennedy": "dp = (Q / k)^(1/n) with k and n from the plant file",
             "stopped_units": "active power, speed and opening read exactly 0 while a unit is "
@@ -236,5 +254,9 @@ def _truth(seed: int, start: datetime, days: int, written: list[tuple[Path, Plan
         "faults": faults,
         "fault_counts": counts,
         "files": per_file,
-        "signatures": list(SIGNATURES),
+        "signatures": [{"plant": s.plant, "unit": s.unit, "signature": s.signature,
+                        "start": _iso(s.start), "end": _iso(s.end), "cause": s.cause,
+                        "magnitude": dict(s.magnitude),
+                        "in_span": bool(s.start < end and s.end > start)}
+                       for s in SIGNATURES],
     }

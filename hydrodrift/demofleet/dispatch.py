@@ -11,6 +11,9 @@ Everything here is invented behaviour meant to look like plant data, vectorised 
 - Both: hourly set points shared between the online units in proportion to their rating,
   units started and stopped with hysteresis, minimum loads, head-limited capacity,
   planned outages, water temperature with the seasons, bearings warming with a lag.
+- Signature episodes (:data:`scenario.SIGNATURES`): a tailwater drawdown and a unit held
+  at high load (cavitation), a unit held at part load (vortex rope), a fouled bearing
+  cooler; :class:`SignatureState` carries their intensities into the signals.
 
 All quantities are SI (W, m, m3/s, Pa, rad/s, K).
 """
@@ -18,6 +21,7 @@ All quantities are SI (W, m, m3/s, Pa, rad/s, K).
 from __future__ import annotations
 
 import zlib
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 
@@ -44,8 +48,10 @@ from hydrodrift.demofleet.scenario import (
     CONDITIONS,
     OUTAGES,
     SAMPLE_SECONDS,
+    SIGNATURES,
     YEAR_SECONDS,
     PlantDesign,
+    Signature,
     UnitDesign,
 )
 from ingest.plant_file import PlantFile, UnitSpec
@@ -114,7 +120,7 @@ def calendar(start: datetime, days: int, timezone: str) -> Calendar:
 def degradation(plant: str, unit: str, times: pd.DatetimeIndex) -> NDArray:
     """Efficiency lost by ``unit`` at ``times`` under :data:`scenario.CONDITIONS` (fraction)."""
     lost = np.zeros(len(times))
-    seconds = times.as_unit("ns").asi8 / 1e9  # resolution-safe (pandas 3 may hold s or us)
+    seconds = _seconds(times)
     for c in CONDITIONS:
         if (c.plant, c.unit) != (plant, unit):
             continue
@@ -133,6 +139,143 @@ def availability(plant: str, unit: str, times: pd.DatetimeIndex) -> NDArray:
         if (o.plant, o.unit) == (plant, unit):
             ok &= ~((times >= o.start) & (times < o.start + o.duration))
     return ok
+
+
+def _seconds(times: pd.DatetimeIndex) -> NDArray:
+    return times.as_unit("ns").asi8 / 1e9  # resolution-safe (pandas 3 may hold s or us)
+
+
+def _mine(signatures: Sequence[Signature], plant: str, kind: str,
+          unit: str | None = None) -> list[Signature]:
+    return [s for s in signatures if s.plant == plant and s.signature == kind
+            and (unit is None or s.unit == unit)]
+
+
+def episode_mask(signature: Signature, times: pd.DatetimeIndex) -> NDArray:
+    """True at ``times`` inside the episode's ``[start, end)``."""
+    t = _seconds(times)
+    return (t >= signature.start.timestamp()) & (t < signature.end.timestamp())
+
+
+def _trapezoid(times: pd.DatetimeIndex, signature: Signature, ramp_s: float) -> NDArray:
+    """0 outside the episode, linear ramps of ``ramp_s`` inside its two ends, 1 between."""
+    t = _seconds(times)
+    rise = np.clip((t - signature.start.timestamp()) / ramp_s, 0.0, 1.0)
+    fall = np.clip((signature.end.timestamp() - t) / ramp_s, 0.0, 1.0)
+    return np.minimum(rise, fall)
+
+
+def drawdown_share(plant: str, times: pd.DatetimeIndex,
+                   signatures: Sequence[Signature] = SIGNATURES) -> tuple[NDArray, NDArray]:
+    """Tailwater drawdown [m] of the plant's cavitation episodes and its share of full (0..1)."""
+    depth, share = np.zeros(len(times)), np.zeros(len(times))
+    for s in _mine(signatures, plant, "cavitation"):
+        m = s.magnitude
+        shape = _trapezoid(times, s, m["drawdown_ramp_s"])
+        depth += m["tailwater_drawdown_m"] * shape
+        share = np.maximum(share, shape)
+    return depth, share
+
+
+@dataclass
+class SignatureState:
+    """What the planted episodes do to one unit, per sample (zeros outside them).
+
+    cavitation : intensity 0..1 (drawdown share x load ramp, online only)
+    efficiency_deficit : turbine efficiency lost to cavitation (fraction)
+    hf_vibration_rise : [m/s2] added RMS acceleration
+    rope : vortex-rope intensity 0..1 (episode x Gaussian in load, online only)
+    pulsation_rise_of_head : added pulsation peak to peak, as a fraction of rho g H
+    bearing_rise_factor : fraction added to the guide bearing's rise over cooling water
+    """
+
+    cavitation: NDArray
+    efficiency_deficit: NDArray
+    hf_vibration_rise: NDArray
+    rope: NDArray
+    pulsation_rise_of_head: NDArray
+    bearing_rise_factor: NDArray
+
+
+def signature_state(plant: str, unit: str, times: pd.DatetimeIndex, load: NDArray,
+                    online: NDArray,
+                    signatures: Sequence[Signature] = SIGNATURES) -> SignatureState:
+    """The episodes of :data:`scenario.SIGNATURES` on ``unit`` at ``times``.
+
+    Parameters
+    ----------
+    load : generator power / rated power (the dispatched set point)
+    online : bool, the unit runs
+    """
+    n = len(times)
+    state = SignatureState(*(np.zeros(n) for _ in range(6)))
+    _, share = drawdown_share(plant, times, signatures)
+    for s in _mine(signatures, plant, "cavitation", unit):
+        m = s.magnitude
+        ramp = np.clip((load - m["onset_load_fraction"])
+                       / (m["full_load_fraction"] - m["onset_load_fraction"]), 0.0, 1.0)
+        here = np.where(online & episode_mask(s, times), share * ramp, 0.0)
+        state.cavitation += here
+        state.efficiency_deficit += m["efficiency_deficit_fraction"] * here
+        state.hf_vibration_rise += m["hf_vibration_rise_m_s2"] * here
+    for s in _mine(signatures, plant, "vortex_rope", unit):
+        m = s.magnitude
+        rope = np.exp(-(((load - m["rope_load_fraction"]) / m["rope_load_width_fraction"])
+                        ** 2))
+        here = np.where(online & episode_mask(s, times), rope, 0.0)
+        state.rope += here
+        state.pulsation_rise_of_head += m["pulsation_rise_of_head"] * here
+    for s in _mine(signatures, plant, "bearing", unit):
+        m = s.magnitude
+        fouling = np.where(episode_mask(s, times), np.clip(
+            (_seconds(times) - s.start.timestamp()) / m["ramp_s"], 0.0, 1.0), 0.0)
+        state.bearing_rise_factor += m["rise_factor"] * fouling
+    return state
+
+
+def _hold_loads(design: PlantDesign, cal: Calendar, demand: NDArray, power: NDArray,
+                rated: NDArray, min_load: NDArray, capacity: NDArray, available: NDArray,
+                priority: NDArray, signatures: Sequence[Signature]) -> NDArray:
+    """Hourly set points during cavitation and vortex-rope episodes: the episode's unit is
+    held in its load band, the others share what is left of the demand, up to the
+    episode's cap (a cap of 0: they stand by). Hours outside the episodes keep the normal
+    commitment."""
+    hours = cal.times[cal.hourly]
+    codes = [u.code for u in design.units]
+    power = power.copy()
+    for s in signatures:
+        if s.plant != design.code or s.signature not in ("cavitation", "vortex_rope"):
+            continue
+        k = codes.index(s.unit)
+        window = episode_mask(s, hours) & available[k]
+        if not window.any():
+            continue
+        m = s.magnitude
+        low, high = m["unit_load_min_fraction"], m["unit_load_max_fraction"]
+        if s.signature == "cavitation":
+            target = np.clip(demand[window] / rated[k], low, high)
+            cap_others = m["other_units_load_max_fraction"]
+        else:  # a slow daily swing through the part-load band (invented)
+            hour_of_day = cal.local_hour[cal.hourly][window]
+            target = low + (high - low) * (0.5 + 0.5 * np.sin(2 * np.pi * hour_of_day / 24.0))
+            cap_others = 1.0
+        held = np.minimum(target * rated[k], capacity[k, window])
+        others = np.array([u for u in range(len(codes)) if u != k])
+        order = priority[window]
+        remap = np.full(len(codes), -1)
+        remap[others] = np.arange(others.size)
+        sub_priority = remap[order[order != k].reshape(order.shape[0], -1)]
+        cells = (others[:, None], np.flatnonzero(window)[None, :])
+        if cap_others <= 0.0:  # the other units stand by
+            power[cells] = 0.0
+        else:
+            sub_capacity = np.minimum(capacity[others][:, window],
+                                      cap_others * rated[others, None])
+            power[cells] = commit_units(
+                np.maximum(demand[window] - held, 0.0), rated[others], min_load[others],
+                sub_capacity, available[others][:, window], sub_priority)
+        power[k, window] = held
+    return power
 
 
 def commit_units(demand: NDArray, rated: NDArray, min_load: NDArray, capacity: NDArray,
@@ -192,7 +335,10 @@ class PlantSimulation:
     tailwater: NDArray  # [m]
     water_temperature: NDArray  # [K]
     river_flow: NDArray | None  # [m3/s], run-of-river plant only
+    #: ``degradation`` of each operating point includes the cavitation deficit, which
+    #: ``signatures[code].efficiency_deficit`` gives on its own
     units: dict[str, OperatingPoint] = field(default_factory=dict)
+    signatures: dict[str, SignatureState] = field(default_factory=dict)  # by unit code
     clean: dict[str, NDArray] = field(default_factory=dict)  # noise-free, SI, by tag
     measured: dict[str, NDArray] = field(default_factory=dict)  # with sensor noise, by tag
 
@@ -215,7 +361,8 @@ def _priority(cal: Calendar, n_units: int) -> NDArray:
 
 
 def _dispatch(design: PlantDesign, plant: PlantFile, cal: Calendar, demand: NDArray,
-              gross_head_h: dict[str, NDArray], interleave: tuple[int, ...]) -> NDArray:
+              gross_head_h: dict[str, NDArray], interleave: tuple[int, ...],
+              signatures: Sequence[Signature]) -> NDArray:
     specs = plant.units
     rated = np.array([u.rated_power for u in specs])
     min_load = np.array([u.min_load for u in design.units])
@@ -223,11 +370,13 @@ def _dispatch(design: PlantDesign, plant: PlantFile, cal: Calendar, demand: NDAr
     available = np.array([availability(design.code, s.code, cal.times[cal.hourly])
                           for s in specs])
     priority = np.asarray(interleave)[_priority(cal, len(specs))]
-    return commit_units(demand, rated, min_load, capacity, available, priority)
+    power = commit_units(demand, rated, min_load, capacity, available, priority)
+    return _hold_loads(design, cal, demand, power, rated, min_load, capacity, available,
+                       priority, signatures)
 
 
-def _glimmerfels(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
-                 ) -> tuple[NDArray, NDArray, NDArray, NDArray]:
+def _glimmerfels(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int,
+                 signatures: Sequence[Signature]) -> tuple[NDArray, NDArray, NDArray, NDArray]:
     """Headwater, tailwater, water temperature [K] and unit power (units, samples) [W]."""
     n = len(cal.times)
     doy = cal.day_of_year
@@ -251,17 +400,19 @@ def _glimmerfels(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
     for spec in plant.units:
         low = spec.runner_reference_elevation if spec.runner_type == "pelton" else 1479.0
         gross_h[spec.code] = headwater[sl] - low
-    power_h = _dispatch(design, plant, cal, demand, gross_h, interleave=(0, 2, 1, 3))
+    power_h = _dispatch(design, plant, cal, demand, gross_h, interleave=(0, 2, 1, 3),
+                        signatures=signatures)
     power = np.array([_hourly(p) for p in power_h])
     # Tailwater in the outlet basin rises with plant flow (invented rating: +1 m at 55 m3/s).
     flow_est = power.sum(axis=0) / (reference_rho() * REFERENCE_G * 500.0 * 0.9)
-    tailwater = 1478.0 + 0.09 * flow_est**0.6
+    tailwater = 1478.0 + 0.09 * flow_est**0.6 - drawdown_share("GLF", cal.times, signatures)[0]
     water_c = (5.5 - 2.5 * np.cos(2 * np.pi * (doy - 45.0) / 365.25)
                + ar1(rng_for(seed, "GLF", "water"), n, 0.995, 0.1))
     return headwater, tailwater, water_c + ZERO_CELSIUS_K, power
 
 
-def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
+def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int,
+             signatures: Sequence[Signature]
              ) -> tuple[NDArray, NDArray, NDArray, NDArray, NDArray]:
     """Headwater, tailwater, water temperature [K], river flow [m3/s], unit power [W]."""
     n = len(cal.times)
@@ -282,8 +433,9 @@ def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
     headwater = (182.0 + 0.10 * np.sin(2 * np.pi * (h - 7.0) / 24.0)
                  - 0.25 * np.clip((river - 900.0) / 1500.0, 0.0, 1.0)
                  + ar1(rng_for(seed, "LBD", "pool"), n, 0.99, 0.02))
-    # Invented tailwater rating: depth ~ Q^0.4 (a wide channel), 163.5 m at 550 m3/s.
-    tailwater = 159.76 + 0.30 * river**0.4
+    # Invented tailwater rating: depth ~ Q^0.4 (a wide channel), 163.5 m at 550 m3/s; less
+    # any drawdown of the downstream pool (cavitation episodes)
+    tailwater = 159.76 + 0.30 * river**0.4 - drawdown_share("LBD", cal.times, signatures)[0]
     sl = cal.hourly
     gross = headwater - tailwater
     available_flow = np.maximum(river - 15.0, 0.0)  # 15 m3/s stay in the fish pass
@@ -291,7 +443,8 @@ def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
     demand = (reference_rho() * REFERENCE_G * available_flow[sl] * gross[sl] * 0.90 * 0.975
               * pondage)
     gross_h = {s.code: gross[sl] for s in plant.units}
-    power_h = _dispatch(design, plant, cal, demand, gross_h, interleave=(0, 1, 2))
+    power_h = _dispatch(design, plant, cal, demand, gross_h, interleave=(0, 1, 2),
+                        signatures=signatures)
     power = np.array([_hourly(p) for p in power_h])
     water_c = (10.0 - 8.0 * np.cos(2 * np.pi * (doy - 30.0) / 365.25)
                + 0.3 * np.sin(2 * np.pi * (h - 15.0) / 24.0)
@@ -299,10 +452,24 @@ def _lantern(design: PlantDesign, plant: PlantFile, cal: Calendar, seed: int
     return headwater, tailwater, np.maximum(water_c, 0.5) + ZERO_CELSIUS_K, river, power
 
 
+#: HF vibration of a stopped unit: the accelerometer chain's floor [m/s2] (invented).
+HF_VIBRATION_STOPPED_M_S2 = 0.02
+#: Width in load of the healthy part-load pulsation hump (fraction of rated power, invented).
+PULSATION_HUMP_WIDTH = 0.12
+
+
 def _unit_signals(design: UnitDesign, spec: UnitSpec, op: OperatingPoint,
                   tailwater: NDArray, water_k: NDArray, plant_code: str,
-                  blade_error: NDArray | None) -> dict[str, NDArray]:
-    """Noise-free signals of one unit, by canonical signal name (SI)."""
+                  blade_error: NDArray | None, state: SignatureState) -> dict[str, NDArray]:
+    """Noise-free signals of one unit, by canonical signal name (SI).
+
+    Condition-monitoring levels (all invented): HF vibration RMS
+    ``a (0.35 + 0.65 load)`` plus the cavitation rise; draft-tube pulsation peak to peak
+    ``(base + hump exp(-((load - at) / 0.12)^2) + rope rise) rho g H`` with ``H`` the net
+    head (pressure fluctuations are scaled by the specific hydraulic energy as in IEC 60193);
+    guide-bearing rise over cooling water ``g0 running + g1 load`` times ``1 + f`` during a
+    fouled-cooler episode, every term through the bearing's first-order lag.
+    """
     on = op.online
     load = op.generator_power / spec.rated_power
     out: dict[str, NDArray] = {"active_power": op.generator_power}
@@ -321,6 +488,12 @@ def _unit_signals(design: UnitDesign, spec: UnitSpec, op: OperatingPoint,
         submergence = tailwater - spec.runner_reference_elevation
         out["draft_tube_pressure"] = (op.rho * op.g * submergence
                                       - 0.7 * op.rho * velocity**2 / 2.0)
+        base, hump, at = design.pulsation_of_head
+        ratio = (base + hump * np.exp(-(((load - at) / PULSATION_HUMP_WIDTH) ** 2))
+                 + state.pulsation_rise_of_head)
+        out["draft_tube_pulsation"] = np.where(on, ratio * op.rho * op.g * op.net_head, 0.0)
+    out["hf_vibration"] = np.where(on, design.hf_vibration_m_s2 * (0.35 + 0.65 * load)
+                                   + state.hf_vibration_rise, HF_VIBRATION_STOPPED_M_S2)
     rough = np.exp(-(((load - design.rough_zone_load) / 0.12) ** 2))
     out["shaft_vibration"] = np.where(
         on, design.shaft_vibration_m * (1 + 0.1 * load) + design.rough_zone_vibration_m * rough,
@@ -335,7 +508,10 @@ def _unit_signals(design: UnitDesign, spec: UnitSpec, op: OperatingPoint,
     out["cooling_water_temperature"] = cooling
     g0, g1 = design.guide_bearing_rise_k
     t0, t1 = design.thrust_bearing_rise_k
-    out["guide_bearing_temperature"] = cooling + 2.0 + g0 * running + g1 * loaded
+    # a fouled cooler: the extra heat input passes through the same lag (zero when healthy)
+    fouled = first_order_lag(state.bearing_rise_factor * np.where(on, g0 + g1 * load, 0.0),
+                             BEARING_TAU_S)
+    out["guide_bearing_temperature"] = cooling + 2.0 + g0 * running + g1 * loaded + fouled
     out["thrust_bearing_temperature"] = cooling + 2.0 + t0 * running + t1 * loaded
     out["water_temperature"] = water_k
     if design.flow_meter:
@@ -352,6 +528,8 @@ SENSOR_NOISE: dict[str, tuple[float, float]] = {
     "draft_tube_pressure": (0.0, 400.0),
     "shaft_vibration": (0.03, 0.5e-6),
     "bearing_vibration": (0.03, 0.01e-3),
+    "hf_vibration": (0.05, 0.005),
+    "draft_tube_pulsation": (0.05, 30.0),
     "guide_bearing_temperature": (0.0, 0.05),
     "thrust_bearing_temperature": (0.0, 0.05),
     "cooling_water_temperature": (0.0, 0.05),
@@ -378,13 +556,14 @@ def _noisy(signal: str, clean: NDArray, rng: np.random.Generator, spec: UnitSpec
         return np.where(online, np.clip(clean + 0.001 * z, 0.0, 1.0), 0.0)
     relative, absolute = SENSOR_NOISE[signal]
     noisy = clean + z * np.hypot(relative * clean, absolute)
-    if signal in ("shaft_vibration", "bearing_vibration"):
+    if signal in ("shaft_vibration", "bearing_vibration", "hf_vibration",
+                  "draft_tube_pulsation"):
         noisy = np.abs(noisy)
     return noisy
 
 
 def simulate_plant(design: PlantDesign, plant: PlantFile, *, start: datetime, days: int,
-                   seed: int) -> PlantSimulation:
+                   seed: int, signatures: Sequence[Signature] = SIGNATURES) -> PlantSimulation:
     """Run one plant over the span: dispatch, hydraulics, signals, sensor noise.
 
     Parameters
@@ -394,13 +573,17 @@ def simulate_plant(design: PlantDesign, plant: PlantFile, *, start: datetime, da
     start : aware datetime, first sample (UTC)
     days : int, length of the span [d]
     seed : int, the scenario's random seed
+    signatures : the episodes to plant (default :data:`scenario.SIGNATURES`; an empty
+        tuple gives the same span without them, for comparison)
     """
     cal = calendar(start, days, design.timezone)
     river = None
     if design.code == "GLF":
-        headwater, tailwater, water_k, power = _glimmerfels(design, plant, cal, seed)
+        headwater, tailwater, water_k, power = _glimmerfels(design, plant, cal, seed,
+                                                            signatures)
     else:
-        headwater, tailwater, water_k, river, power = _lantern(design, plant, cal, seed)
+        headwater, tailwater, water_k, river, power = _lantern(design, plant, cal, seed,
+                                                               signatures)
     sim = PlantSimulation(design=design, plant=plant, cal=cal, headwater=headwater,
                           tailwater=tailwater, water_temperature=water_k, river_flow=river)
     g = float(local_gravity(design.latitude, design.elevation_m))
@@ -419,13 +602,17 @@ def simulate_plant(design: PlantDesign, plant: PlantFile, *, start: datetime, da
             sigma_deg, phi = CAM_FOLLOWING
             blade_error = np.deg2rad(ar1(rng_for(seed, design.code, spec.code, "cam"),
                                          len(cal.times), phi, sigma_deg))
+        state = signature_state(design.code, spec.code, cal.times,
+                                power[i] / spec.rated_power, power[i] > 0.0, signatures)
         op = operating_point(spec, physics, power[i], headwater - low,
-                             degradation(design.code, spec.code, cal.times), rho=rho, g=g,
+                             degradation(design.code, spec.code, cal.times)
+                             + state.efficiency_deficit, rho=rho, g=g,
                              blade_error=blade_error)
         sim.units[spec.code] = op
+        sim.signatures[spec.code] = state
         offset = rng_for(seed, design.code, spec.code, "water-sensor").normal(0.0, 0.05)
         signals = _unit_signals(unit_design, spec, op, tailwater, water_k + offset,
-                                design.code, blade_error)
+                                design.code, blade_error, state)
         for name, values in signals.items():
             by_unit_signal[(spec.code, name)] = values
     for tag, mapping in plant.tags.items():

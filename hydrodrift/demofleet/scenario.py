@@ -13,8 +13,13 @@ Ground truth
 :data:`CONDITIONS` says which unit degrades, how and when; :data:`FAULTS` lists the data
 faults injected into the exports (their exact timestamps and file lines are resolved at
 generation and written to ``truth.json``); :data:`OUTAGES` lists planned outages (not
-faults); :data:`SIGNATURES` is reserved for later cavitation / vortex-rope / bearing
-episodes and is empty for now.
+faults); :data:`SIGNATURES` lists the condition-monitoring episodes (cavitation, a
+part-load vortex rope, a bearing fault) planted on named units at stated UTC times, each
+copied to ``truth.json["signatures"]``. GLF MG1 and MG3 carry no signature at all, and no
+signature sits on the drifting units (LBD U3, GLF MG2) or in any unit's first 8 weeks.
+
+The demo shows what a monitoring service would flag; in a real plant such flags call for
+inspection by qualified staff, and local codes and licensed practice prevail.
 """
 
 from __future__ import annotations
@@ -71,6 +76,13 @@ class UnitDesign:
     rough_zone_load: float = 0.5  # load fraction where the rough zone peaks
     guide_bearing_rise_k: tuple[float, float] = (20.0, 6.0)  # (running, per unit load)
     thrust_bearing_rise_k: tuple[float, float] = (26.0, 10.0)
+    # High-frequency (cavitation-band) RMS acceleration of the healthy unit at rated load
+    # [m/s2]; it scales as (0.35 + 0.65 load) (invented levels and law).
+    hf_vibration_m_s2: float = 1.0
+    # Draft-tube pressure pulsation, peak to peak, as a fraction of rho g H (net head):
+    # (base, part-load hump, load of the hump's peak); the hump is a Gaussian of width
+    # 0.12 in load. Healthy levels, with the draft tube's air admission working (invented).
+    pulsation_of_head: tuple[float, float, float] = (0.003, 0.004, 0.35)
 
     @property
     def rated_speed_rpm(self) -> float:
@@ -184,6 +196,9 @@ def _francis(code: str, name: str, *, flow_meter: bool) -> UnitDesign:
         shaft_vibration_m=38e-6, rough_zone_vibration_m=45e-6, bearing_vibration_m_s=1.3e-3,
         rough_zone_load=0.50,
         guide_bearing_rise_k=(22.0, 8.0), thrust_bearing_rise_k=(28.0, 10.0),
+        # high-head Francis: ~1.6 m/s2 HF at rating; pulsation 0.2 % of rho g H plus a
+        # part-load hump of 0.5 % at half load (invented; both scale with the 500 m head)
+        hf_vibration_m_s2=1.6, pulsation_of_head=(0.002, 0.005, 0.50),
     )
 
 
@@ -204,6 +219,9 @@ def _pelton(code: str, name: str) -> UnitDesign:
         shaft_vibration_m=25e-6, rough_zone_vibration_m=5e-6, bearing_vibration_m_s=0.9e-3,
         rough_zone_load=0.2,
         guide_bearing_rise_k=(20.0, 5.0), thrust_bearing_rise_k=(22.0, 6.0),
+        # jets striking the buckets make a Pelton HF-rich even when healthy (invented level);
+        # no draft tube, so no pulsation
+        hf_vibration_m_s2=2.4, pulsation_of_head=(0.0, 0.0, 0.0),
     )
 
 
@@ -222,9 +240,13 @@ def _glimmerfels_tags(units: tuple[UnitDesign, ...]) -> tuple[TagDesign, ...]:
         ]
         if u.outlet_area_m2 > 0:
             tags.append(TagDesign(p + "P_SR", u.code, "draft_tube_pressure", "kPa", 2))
+            # Saugrohr-Druckpulsation, peak to peak (Spitze-Spitze)
+            tags.append(TagDesign(p + "P_SR_PULS", u.code, "draft_tube_pulsation", "kPa", 3))
         tags += [
             TagDesign(p + "VIB_WELLE", u.code, "shaft_vibration", "um", 1),
             TagDesign(p + "VIB_LAGER", u.code, "bearing_vibration", "mm/s", 3),
+            # cavitation-band acceleration, RMS
+            TagDesign(p + "VIB_HF", u.code, "hf_vibration", "m/s**2", 3),
             TagDesign(p + "T_FL", u.code, "guide_bearing_temperature", "degC", 2),
             TagDesign(p + "T_SL", u.code, "thrust_bearing_temperature", "degC", 2),
             TagDesign(p + "T_KW", u.code, "cooling_water_temperature", "degC", 2),
@@ -294,6 +316,9 @@ def _kaplan(code: str, name: str) -> UnitDesign:
         shaft_vibration_m=70e-6, rough_zone_vibration_m=20e-6, bearing_vibration_m_s=1.5e-3,
         rough_zone_load=0.30,
         guide_bearing_rise_k=(18.0, 6.0), thrust_bearing_rise_k=(30.0, 12.0),
+        # on its cam a Kaplan leaves little swirl: a weak part-load hump near its rough zone
+        # (invented levels)
+        hf_vibration_m_s2=0.9, pulsation_of_head=(0.003, 0.004, 0.30),
     )
 
 
@@ -311,8 +336,13 @@ def _lantern_tags(units: tuple[UnitDesign, ...]) -> tuple[TagDesign, ...]:
             TagDesign(p + "BLADE.DEG", u.code, "blade_angle", "deg", 2),
             TagDesign(p + "SPEED.RPM", u.code, "rotational_speed", "rpm", 3),
             TagDesign(p + "DT.PSI", u.code, "draft_tube_pressure", "psi", 3),
+            # draft-tube pulsation, peak to peak, in psi
+            TagDesign(p + "DT.PULS.PSI", u.code, "draft_tube_pulsation", "psi", 4),
             TagDesign(p + "SHAFT.MILS", u.code, "shaft_vibration", "mil_length", 3),
             TagDesign(p + "BRG.IPS", u.code, "bearing_vibration", "in/s", 5),
+            # cavitation-band acceleration, RMS, in standard gravities (pint's "g_n":
+            # 9.80665 m/s2; a bare "g" would be the gram)
+            TagDesign(p + "HFVIB.G", u.code, "hf_vibration", "g_n", 4),
             TagDesign(p + "TGB.DEGF", u.code, "guide_bearing_temperature", "degF", 2),
             TagDesign(p + "THR.DEGF", u.code, "thrust_bearing_temperature", "degF", 2),
             TagDesign(p + "CW.DEGF", u.code, "cooling_water_temperature", "degF", 2),
@@ -435,8 +465,80 @@ FAULTS: tuple[FaultSpec, ...] = (
 #: Second garbled timestamp text of the bad_timestamp fault (written 25 samples later).
 BAD_TIMESTAMP_SECOND_RAW = "##########"
 
-#: Reserved for later signature episodes (cavitation, vortex rope, bearing); empty for now.
-SIGNATURES: tuple[dict[str, object], ...] = ()
+SignatureKind = Literal["cavitation", "vortex_rope", "bearing"]
+
+
+@dataclass(frozen=True)
+class Signature:
+    """A condition-monitoring episode planted on one unit over ``[start, end)`` (UTC).
+
+    ``magnitude`` holds the episode's parameters in SI units (fractions are of rated power
+    for loads, of rho g H for pulsations); the generator reads them from here, so this is
+    the declarative source of ``truth.json["signatures"]``. What each kind plants:
+
+    - ``cavitation``: the plant's tailwater is drawn down by ``tailwater_drawdown_m``
+      (linear ramps of ``drawdown_ramp_s`` inside the period), the unit is held at
+      ``unit_load_min_fraction`` .. ``unit_load_max_fraction`` of rating while the other
+      units stay below ``other_units_load_max_fraction`` (0: they stand by, so no other
+      unit runs at the low sigma); its intensity is the drawdown's
+      share times a ramp in load from ``onset_load_fraction`` (0) to ``full_load_fraction``
+      (1). HF vibration rises by ``hf_vibration_rise_m_s2`` and turbine efficiency falls by
+      ``efficiency_deficit_fraction`` times the intensity.
+    - ``vortex_rope``: the unit is held at part load (same two load keys) with its draft-tube
+      air admission out of service; the pulsation (peak to peak) rises by
+      ``pulsation_rise_of_head`` x rho g H times a Gaussian in load centred on
+      ``rope_load_fraction``, of width ``rope_load_width_fraction``.
+    - ``bearing``: the guide-bearing temperature rise over cooling water (its running and
+      load terms) grows by ``rise_factor``, ramping in over ``ramp_s``; the extra heat
+      passes through the bearing's thermal lag like the rest of the rise.
+    """
+
+    plant: str
+    unit: str
+    signature: SignatureKind
+    start: datetime
+    end: datetime
+    cause: str
+    magnitude: dict[str, float] = field(hash=False)
+
+
+#: The planted condition-monitoring episodes (every number and cause invented). Cavitation
+#: sits in the late-summer low-flow season at the run-of-river plant, where low river gives
+#: low tailwater; a navigation-pool drawdown downstream lowers it further. Each unit's
+#: first 8 weeks (from DEFAULT_START) stay clean, as a detector's healthy baseline. The rope
+#: is on Kaplan U1: the fleet's only Francis units are MG1 (kept clean) and MG2 (its step
+#: truth), and a Kaplan's blades near flat at part load leave swirl for a rope too.
+SIGNATURES: tuple[Signature, ...] = (
+    Signature("LBD", "U1", "vortex_rope",
+              datetime(2026, 3, 9, 14, 0, tzinfo=UTC), datetime(2026, 3, 16, 14, 0, tzinfo=UTC),
+              "U1 held at 42-53 % load as the plant's regulating reserve while its draft-tube "
+              "air-admission valve was isolated for repair: an undamped part-load vortex rope "
+              "(invented)",
+              {"unit_load_min_fraction": 0.42, "unit_load_max_fraction": 0.53,
+               # 4 % of rho g H peak to peak: ~7 kPa at 18.5 m, a few % as part-load ropes
+               # reach in model tests (order of magnitude from memory; level invented)
+               "pulsation_rise_of_head": 0.04, "rope_load_fraction": 0.47,
+               "rope_load_width_fraction": 0.15}),
+    Signature("GLF", "MG4", "bearing",
+              datetime(2026, 6, 8, 6, 0, tzinfo=UTC), datetime(2026, 6, 29, 6, 0, tzinfo=UTC),
+              "guide-bearing oil cooler fouled by snowmelt silt in the cooling water; the "
+              "cleaned standby cooler was switched in at the end (invented)",
+              # 30 % more rise: ~7.5 K at rated load on MG4's (20 + 5 load) K rise (invented)
+              {"rise_factor": 0.30, "ramp_s": 3 * 86400.0}),
+    *(Signature("LBD", "U2", "cavitation", start, start + timedelta(days=days),
+                "downstream navigation pool drawn down 1.5 m for lock-gate repair: low "
+                "tailwater, plant sigma about 0.1 lower, with U2 running alone at 82-95 % "
+                "load while U1 and U3 stood by (invented)",
+                {"tailwater_drawdown_m": 1.5, "drawdown_ramp_s": 6 * 3600.0,
+                 "unit_load_min_fraction": 0.82, "unit_load_max_fraction": 0.95,
+                 "other_units_load_max_fraction": 0.0,  # they stand by
+                 "onset_load_fraction": 0.65, "full_load_fraction": 0.85,
+                 # ~9x the healthy 0.9 m/s2 at rating; 0.3 point efficiency (invented)
+                 "hf_vibration_rise_m_s2": 8.0, "efficiency_deficit_fraction": 0.003})
+      for start, days in ((datetime(2026, 7, 27, 13, 0, tzinfo=UTC), 3),
+                          (datetime(2026, 8, 31, 13, 0, tzinfo=UTC), 4),
+                          (datetime(2026, 10, 5, 13, 0, tzinfo=UTC), 2))),
+)
 
 
 def plant_design(code: str) -> PlantDesign:
