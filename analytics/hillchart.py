@@ -304,11 +304,16 @@ class HillChart:
         """
         return self._lookup(power, head, "mode")
 
+    def max_power_at(self, head: ArrayLike) -> NDArray:
+        """Largest shaft power [W] at ``head`` [m], interpolated as ``P_max / H^1.5``."""
+        h = np.asarray(head, dtype=float)
+        return np.interp(h, self.heads, self.max_power / self.heads**1.5) * h**1.5
+
     def best_efficiency_point(self, head: float) -> BestEfficiencyPoint:
         """BEP at ``head`` [m] on the chart's load grid (interpolated between grid heads)."""
         h = np.full(self.loads.shape, float(head))
         at = np.array([float(head)])
-        top = np.interp(at, self.heads, self.max_power / self.heads**1.5) * at**1.5
+        top = self.max_power_at(at)
         power = self.loads * float(top[0])
         eta = self.efficiency_at_power(power, h)
         if not np.isfinite(eta).any():

@@ -502,6 +502,19 @@ def report_cmd(
         sys.stdout.write(render_report(week, frame, fmt, caution=SAFETY_NOTE))
 
 
+def _utc_day(text: str | None, option: str):
+    """``YYYY-MM-DD`` as the UTC midnight starting that day; exit 2 naming the option."""
+    from datetime import UTC, datetime
+
+    if text is None:
+        return None
+    try:
+        return datetime.strptime(text, "%Y-%m-%d").replace(tzinfo=UTC)
+    except ValueError:
+        err.print(f"error: --{option} {text!r}: expected YYYY-MM-DD")
+        raise typer.Exit(2) from None
+
+
 @app.command("cam")
 def cam_cmd(
     plant: Annotated[str, typer.Argument(help="Plant code.")],
@@ -511,28 +524,18 @@ def cam_cmd(
                      ] = None,
 ) -> None:
     """Kaplan cam check: best blade angle per opening and head band against the cam."""
-    from datetime import UTC, datetime
 
     import numpy as np
 
     from jobs.cam_review import CamReviewError, unit_cam_check
     from store.engine import session_scope
 
-    def day(text: str | None, name: str) -> datetime | None:
-        if text is None:
-            return None
-        try:
-            return datetime.strptime(text, "%Y-%m-%d").replace(tzinfo=UTC)
-        except ValueError:
-            err.print(f"error: --{name} {text!r}: expected YYYY-MM-DD")
-            raise typer.Exit(2) from None
-
     settings = get_settings()
     engine = _engine(settings)
     try:
         with session_scope(engine) as session:
-            result, _ = unit_cam_check(session, plant, unit, since=day(since, "since"),
-                                          until=day(until, "until"))
+            result, _ = unit_cam_check(session, plant, unit, since=_utc_day(since, "since"),
+                                       until=_utc_day(until, "until"))
     except CamReviewError as exc:
         err.print(f"error: {exc}")
         raise typer.Exit(1) from None
@@ -745,18 +748,13 @@ def detector_train(
     until: Annotated[str, typer.Option("--to", help="Baseline end (exclusive), YYYY-MM-DD.")],
 ) -> None:
     """Train a new detector version on a declared healthy period; past scores stay."""
-    from datetime import UTC, datetime
 
     from jobs.detect import DetectorError, reconcile_unit, score_windows, train_detector
     from store.engine import session_scope
     from store.models import Plant, Unit
 
-    try:
-        start = datetime.strptime(since, "%Y-%m-%d").replace(tzinfo=UTC)
-        end = datetime.strptime(until, "%Y-%m-%d").replace(tzinfo=UTC)
-    except ValueError:
-        err.print("error: --from/--to: expected YYYY-MM-DD")
-        raise typer.Exit(2) from None
+    start = _utc_day(since, "from")
+    end = _utc_day(until, "to")
     settings = get_settings()
     engine = _engine(settings)
     try:

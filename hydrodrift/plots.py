@@ -118,8 +118,7 @@ def _drift_panel(ax, weeks: pd.DataFrame, reference: ReferenceModel, timezone: s
 def _curve_panel(ax, chart, windows: pd.DataFrame) -> None:
     head = float(np.nanmedian(windows["head"])) if len(windows) else float(
         np.median(chart.heads))
-    p_max = float(np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
-                  * head**1.5)
+    p_max = float(chart.max_power_at(head))
     power = np.linspace(0.05, 1.0, 200) * p_max
     eta_ref = chart.efficiency_at_power(power, np.full(power.shape, head))
     ax.plot(power / 1e6, 100 * eta_ref, color="#08519c", lw=2,

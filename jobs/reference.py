@@ -20,8 +20,6 @@ give is derived and written down here:
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -57,11 +55,22 @@ class UnitReferenceError(ValueError):
     """A unit has no usable reference (no geometry, no points, or a refused fit)."""
 
 
+def reference_density() -> float:
+    """Water density of the reference charts [kg/m3]: IAPWS-IF97 at
+    REFERENCE_WATER_TEMPERATURE and sea-level standard pressure."""
+    return float(density(REFERENCE_WATER_TEMPERATURE, atmospheric_pressure(0.0)))
+
+
+def estimated_rated_flow(rated_power: float, rated_head: float, rho: float, g: float) -> float:
+    """Rated flow [m3/s] from ``P = rho g Q H eta_t eta_g`` with typical efficiencies
+    (0.92, 0.98; common practice), for a plant file that gives none."""
+    return float(rated_power / (rho * g * rated_head * 0.92 * 0.98))
+
+
 def _rated_flow(spec: UnitSpec, rho: float, g: float) -> float:
     if spec.rated_flow is not None:
         return float(spec.rated_flow)
-    # P = rho g Q H eta_t eta_g with typical efficiencies (0.92, 0.98) when none is given
-    return float(spec.rated_power / (rho * g * spec.rated_head * 0.92 * 0.98))
+    return estimated_rated_flow(spec.rated_power, spec.rated_head, rho, g)
 
 
 def runner_model(spec: UnitSpec, *, rho: float, g: float) -> RunnerModel:
@@ -183,7 +192,7 @@ def calibrate_unit(spec: UnitSpec, *, g: float) -> tuple[CalibrationResult, Hill
 
 
 def _calibrate_unit(spec: UnitSpec, *, g: float) -> tuple[CalibrationResult, HillChart]:
-    rho = float(density(REFERENCE_WATER_TEMPERATURE, atmospheric_pressure(0.0)))
+    rho = reference_density()
     model = runner_model(spec, rho=rho, g=g)
     data = reference_data(spec)
     modes = jet_modes(spec)
@@ -263,8 +272,3 @@ def reference_chart(reference: ReferenceModel) -> HillChart:
         chart = HillChart.from_dict(reference.hill_chart)
         _CHARTS[key] = chart
     return chart
-
-
-def speed_rpm(spec: UnitSpec) -> float:
-    """Synchronous speed in rpm (for display)."""
-    return float(spec.rated_speed) * 60.0 / (2.0 * math.pi)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from datetime import UTC, datetime
+from datetime import datetime
 
 import numpy as np
 import pandas as pd
@@ -52,7 +52,3 @@ def read_unit_samples(conn: Connection, unit_id: int, start: datetime, end: date
         frame[name] = np.where(bad, np.nan, values)
     return frame
 
-
-def utc_from_us(values: np.ndarray) -> list[datetime]:
-    """Aware UTC datetimes from int64 epoch microseconds."""
-    return [datetime.fromtimestamp(int(v) / 1e6, tz=UTC) for v in values]

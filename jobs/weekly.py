@@ -104,19 +104,29 @@ def refresh_weeks(session: Session, settings: Settings, plant: Plant, unit: Unit
     session.execute(delete(WeeklyDrift).where(WeeklyDrift.unit_id == unit.id,
                                               WeeklyDrift.week_start >= since))
     rows = []
-    history = earlier.copy()
+    # per reference epoch, the weeks known so far: (labels, starts, medians, lost MWh)
+    epochs: dict[int, tuple[list, list, list, list]] = {}
+    for old in earlier.itertuples(index=False):
+        known = epochs.setdefault(int(old.reference_model_id), ([], [], [], []))
+        for column, value in zip(known, (old.week, old.week_start, _f(old.deviation_median),
+                                         _f(old.lost_mwh)), strict=True):
+            column.append(value)
     for rec in table.itertuples(index=False):
-        epoch = history[history["reference_model_id"] == rec.reference_model_id]
-        series_t = [*epoch["week_start"], rec.week_start]
-        series_v = np.append(epoch["deviation_median"].to_numpy(dtype=float),
-                             _f(rec.deviation_median))
-        lost = np.append(epoch["lost_mwh"].to_numpy(dtype=float), _f(rec.lost_mwh))
+        weeks, starts, medians, losses = epochs.setdefault(int(rec.reference_model_id),
+                                                           ([], [], [], []))
+        weeks.append(rec.week)
+        starts.append(rec.week_start)
+        medians.append(_f(rec.deviation_median))
+        losses.append(_f(rec.lost_mwh))
+        series_t = starts
+        series_v = np.asarray(medians, dtype=float)
+        lost = np.asarray(losses, dtype=float)
         trend = theil_sen_trend(pd.DatetimeIndex(series_t), series_v,
                                 confidence=settings.confidence, min_points=MIN_TREND_WEEKS)
         cp_week, cp_size = None, None
         if np.isfinite(series_v).sum() >= 2 * MIN_SEGMENT_WEEKS:
             sigma = max(robust_noise_sigma(series_v), WEEKLY_SIGMA_FLOOR)
-            cps = change_points(series_v, sigma=sigma, weeks=[*epoch["week"], rec.week])
+            cps = change_points(series_v, sigma=sigma, weeks=list(weeks))
             cps = cps[cps["size"].abs() >= MIN_REPORTED_SHIFT]
             if len(cps):
                 cp_week, cp_size = str(cps["week"].iloc[-1]), float(cps["size"].iloc[-1])
@@ -139,11 +149,6 @@ def refresh_weeks(session: Session, settings: Settings, plant: Plant, unit: Unit
             reference_model_id=int(rec.reference_model_id), code_version=__version__,
         )
         rows.append(row)
-        history = pd.concat([history, pd.DataFrame([{
-            "week": rec.week, "week_start": rec.week_start,
-            "deviation_median": _f(rec.deviation_median),
-            "reference_model_id": rec.reference_model_id, "lost_mwh": _f(rec.lost_mwh)}])],
-            ignore_index=True)
     if rows:
         session.execute(WeeklyDrift.__table__.insert(), rows)
     return len(rows)

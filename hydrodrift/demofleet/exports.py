@@ -127,8 +127,7 @@ def design_reference_points(unit: UnitDesign) -> list[dict[str, float]]:
     points = []
     for head, load in cases:
         h = np.array([head])
-        p_max = float(np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
-                      * head**1.5)
+        p_max = float(chart.max_power_at(head))
         target = np.array([min(load * rated_turbine, 0.98 * p_max)])
         if unit.runner_type == "pelton":
             eta = float(chart.efficiency_at_power(target, h)[0])

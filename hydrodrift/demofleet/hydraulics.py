@@ -27,6 +27,7 @@ from numpy.typing import ArrayLike, NDArray
 from analytics.index_test import generator_efficiency as curve_efficiency
 from hydrodrift.demofleet.physics import DemoUnitPhysics
 from ingest.plant_file import UnitSpec
+from jobs.efficiency import generator_curve
 
 #: Largest share of the chart's maximum power at a head the governor will load a unit to.
 MAX_LOAD_OF_CHART = 0.995
@@ -59,12 +60,11 @@ class OperatingPoint:
 
 def generator_efficiency(unit: UnitSpec, power_w: ArrayLike) -> NDArray:
     """Generator efficiency of ``unit`` at an active power [W] (its plant-file curve)."""
-    curve = unit.generator_efficiency
     power = np.asarray(power_w, dtype=float)
-    if isinstance(curve, float):
-        return np.full_like(power, curve)
-    return np.asarray(curve_efficiency(power, [p.power for p in curve],
-                                       [p.efficiency for p in curve]), dtype=float)
+    curve_p, curve_eta = generator_curve(unit)
+    if curve_p is None:
+        return np.full_like(power, float(curve_eta))
+    return np.asarray(curve_efficiency(power, curve_p, curve_eta), dtype=float)
 
 
 def operating_point(unit: UnitSpec, physics: DemoUnitPhysics, generator_power: ArrayLike,
@@ -131,8 +131,7 @@ def _solve_head(unit: UnitSpec, chart, p_gen: NDArray, online: NDArray, h_gross:
     for _ in range(max_iterations):
         eta_gen = np.where(online, generator_efficiency(unit, p_gen), np.nan)
         p_turb = np.where(online, p_gen / np.where(online, eta_gen, 1.0), 0.0)
-        reduced = np.interp(head, chart.heads, chart.max_power / chart.heads**1.5)
-        limit = MAX_LOAD_OF_CHART * reduced * head**1.5
+        limit = MAX_LOAD_OF_CHART * chart.max_power_at(head)
         p_turb = np.minimum(p_turb, limit)
         p_gen = np.where(online, p_turb * eta_gen, 0.0)
         eta_ref = chart.efficiency_at_power(p_turb, head)

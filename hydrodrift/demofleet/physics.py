@@ -25,10 +25,10 @@ from numpy.typing import NDArray
 
 from analytics.hillchart import HillChart, build_hill_chart
 from analytics.runners.base import RunnerModel
-from analytics.water import density
 from hydrodrift.demofleet.scenario import PLANTS, PlantDesign, UnitDesign
 from ingest.plant_file import FrancisGeometry, KaplanGeometry, PeltonGeometry
-from jobs.reference import REFERENCE_WATER_TEMPERATURE, runner_model_for
+from jobs import reference
+from jobs.reference import runner_model_for
 
 #: "As built" loss coefficients relative to the models' typical values (invented): every
 #: machine is a little different from its design.
@@ -65,7 +65,7 @@ def design_speed(unit: UnitDesign) -> float:
 
 def estimated_rated_flow(unit: UnitDesign, rho: float, g: float) -> float:
     """The rated-flow estimate the service also uses without a plant-file rated flow."""
-    return unit.rated_power_w / (rho * g * unit.rated_head_m * 0.92 * 0.98)
+    return reference.estimated_rated_flow(unit.rated_power_w, unit.rated_head_m, rho, g)
 
 
 def _geometry(unit: UnitDesign, cam_rows: list[list[float]] | None = None):
@@ -98,8 +98,8 @@ class DemoUnitPhysics:
 
 
 def reference_rho() -> float:
-    """Water density of the reference charts [kg/m3] (IAPWS-IF97 at 10 degC, 1 atm)."""
-    return float(density(REFERENCE_WATER_TEMPERATURE, 101_325.0))
+    """Water density of the reference charts [kg/m3], the service's own."""
+    return reference.reference_density()
 
 
 @lru_cache(maxsize=32)
